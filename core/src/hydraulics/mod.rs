@@ -1,0 +1,2 @@
+//! Outlet hydraulics: orifices, weirs, gates, risers, spillways, composite outlets, ratings.
+//! (being written)

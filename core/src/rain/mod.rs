@@ -1,0 +1,1 @@
+//! Rain from gauges and IDF curves. (being written)

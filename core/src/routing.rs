@@ -1,0 +1,1 @@
+//! Level-pool routing. (being written)

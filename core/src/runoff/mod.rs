@@ -1,0 +1,1 @@
+//! Rational-method runoff, time of concentration, hydrographs. (being written)

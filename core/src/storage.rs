@@ -1,0 +1,1 @@
+//! Stage–storage relations. (being written)

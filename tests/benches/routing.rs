@@ -1,0 +1,2 @@
+//! benchmark (being written)
+fn main() {}
