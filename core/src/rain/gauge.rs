@@ -208,7 +208,8 @@ impl Record {
     }
 }
 
-/// A rain gauge with a ring buffer of `N` rain records (see the module doc for the rules).
+/// A rain gauge with a ring buffer of `N` rain records (see the module doc for the rules);
+/// `N = 0` does not compile (heapless checks it at compile time).
 #[derive(Debug, Clone)]
 pub struct RainGauge<const N: usize> {
     settings: GaugeSettings,
@@ -583,5 +584,44 @@ impl<const N: usize> RainGauge<N> {
     /// How many events have completed since start.
     pub fn completed_events(&self) -> u32 {
         self.completed_count
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A spread record contributes its overlapping fraction; a point counts in `(from, to]`.
+    #[test]
+    fn record_depth_in_window_is_the_overlapping_fraction() {
+        let r = Record {
+            start_s: 100,
+            end_s: 200,
+            depth_mm: 1.0,
+        };
+        assert_eq!(r.depth_in(150, 300), 0.5);
+        assert_eq!(r.depth_in(0, 100), 0.0);
+        assert_eq!(r.depth_in(0, 1000), 1.0);
+        let p = Record {
+            start_s: 100,
+            end_s: 100,
+            depth_mm: 0.2,
+        };
+        assert_eq!(p.depth_in(99, 100), 0.2);
+        assert_eq!(p.depth_in(100, 200), 0.0);
+    }
+
+    /// Interval totals read back exactly over windows aligned with the intervals.
+    #[test]
+    fn aligned_interval_totals_read_back_exactly() {
+        let mut g = RainGauge::<16>::new(&GaugeSettings::default(), &[300, 900]).unwrap();
+        for (k, mm) in [1.0_f32, 2.0, 3.0].into_iter().enumerate() {
+            let end = 300 * (k as u32 + 1);
+            assert_eq!(g.record_interval(end, 300, mm), IntervalOutcome::Counted);
+        }
+        let r = g.readings(900);
+        assert_eq!(r.as_slice()[0].depth_mm, 3.0);
+        assert_eq!(r.as_slice()[1].depth_mm, 6.0);
+        assert_eq!(r.as_slice()[1].intensity_mm_h, 24.0);
     }
 }
