@@ -128,3 +128,32 @@ pub fn storms(rows: &[(i64, f64)], dry_s: i64) -> Vec<Vec<(i64, f64)>> {
     }
     out
 }
+
+/// Seconds from 2010-01-01T00:00Z to a `YYYY-MM-DDTHH:MMZ` stamp.
+pub fn stamp_s_since_2010(stamp: &str) -> Result<i64, String> {
+    let num = |a: usize, b: usize| -> Result<i64, String> {
+        stamp
+            .get(a..b)
+            .and_then(|s| s.parse().ok())
+            .ok_or_else(|| format!("bad stamp {stamp:?}"))
+    };
+    let days = days_from_civil(num(0, 4)?, num(5, 7)?, num(8, 10)?) - days_from_civil(2010, 1, 1);
+    Ok(days * 86_400 + num(11, 13)? * 3600 + num(14, 16)? * 60)
+}
+
+/// The Görlitz July 2010 excerpt as `(step end s since 2010-01-01Z, depth mm)`, taking each
+/// stamp as the start of its 5-min step; only wet steps are listed.
+pub fn load_dwd_excerpt() -> Result<Vec<(i64, f64)>, String> {
+    let p = data_path("rain/dwd_01684_goerlitz_2010-07-17.csv");
+    let text = std::fs::read_to_string(&p).map_err(|e| format!("{}: {e}", p.display()))?;
+    let mut out = Vec::new();
+    for line in text.lines().filter(|l| !l.starts_with('#')).skip(1) {
+        let cells: Vec<&str> = line.split(',').collect();
+        if cells.len() != 3 || cells[1] != "5" {
+            return Err(format!("unexpected row {line:?}"));
+        }
+        let mm: f64 = cells[2].parse().map_err(|e| format!("{line:?}: {e}"))?;
+        out.push((stamp_s_since_2010(cells[0])? + 300, mm));
+    }
+    Ok(out)
+}
