@@ -6,5 +6,6 @@
 //! The checks themselves are in `tests/`; benchmarks in `benches/`.
 
 pub mod hydraulics64;
+pub mod rain64;
 pub mod refdata;
 pub mod storage64;
