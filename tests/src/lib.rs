@@ -7,4 +7,5 @@
 
 pub mod hydraulics64;
 pub mod refdata;
+pub mod runoff64;
 pub mod storage64;
