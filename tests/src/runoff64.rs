@@ -6,7 +6,7 @@
 //!   1 acre = 43 560 ft², 1 ha = 10 000 m², 1 h = 3600 s;
 //! - rational method Q = C·i·A (Kuichling 1889; any hydrology text);
 //! - Kirpich (1940), "Time of concentration of small agricultural watersheds", Civil
-//!   Engineering 10(6):362: tc [min] = 0.0078·L^0.77·S^−0.385, L in ft (constants from
+//!   Engineering 10(6):362: tc \[min\] = 0.0078·L^0.77·S^−0.385, L in ft (constants from
 //!   memory); the metric form uses 0.0195 with L in m;
 //! - Manning (1891), SI: V = (1/n)·R^(2/3)·S^(1/2);
 //! - the modified-rational hydrograph shape as defined in the core's module doc (triangle,
@@ -24,13 +24,13 @@ pub const M2_PER_HA: f64 = 10_000.0;
 pub const S_PER_H: f64 = 3600.0;
 
 /// Rational peak in m³/s from C, i in mm/h and A in ha, through base SI units:
-/// i [m/s] = i/1000/3600, A [m²] = A·10 000.
+/// i \[m/s\] = i/1000/3600, A \[m²\] = A·10 000.
 pub fn rational_si_m3s(c: f64, intensity_mm_h: f64, area_ha: f64) -> f64 {
     c * (intensity_mm_h / 1000.0 / S_PER_H) * (area_ha * M2_PER_HA)
 }
 
 /// Rational peak in ft³/s from C, i in in/h and A in acres, through base US units:
-/// i [ft/s] = i/12/3600, A [ft²] = A·43 560.
+/// i \[ft/s\] = i/12/3600, A \[ft²\] = A·43 560.
 pub fn rational_us_cfs(c: f64, intensity_in_h: f64, area_acres: f64) -> f64 {
     c * (intensity_in_h / 12.0 / S_PER_H) * (area_acres * FT2_PER_ACRE)
 }
@@ -95,7 +95,7 @@ pub fn modified_rational_q(t_s: f64, qe: f64, tc_s: f64, tr_s: f64) -> f64 {
     }
 }
 
-/// Mean of [`modified_rational_q`] over `[t0_s, t1_s]` (`t1_s > t0_s`), exact: the
+/// Mean of [`modified_rational_q`] over `\[t0_s, t1_s\]` (`t1_s > t0_s`), exact: the
 /// trapezoid rule on each corner-free (linear) piece. Used to compare with step means.
 pub fn modified_rational_mean(t0_s: f64, t1_s: f64, qe: f64, tc_s: f64, tr_s: f64) -> f64 {
     // The function is piecewise linear with corners at 0, min, max, Tc + Tr: integrate each
@@ -112,8 +112,9 @@ pub fn modified_rational_mean(t0_s: f64, t1_s: f64, qe: f64, tc_s: f64, tr_s: f6
     let mut integral = 0.0;
     for w in cuts.windows(2) {
         let (a, b) = (w[0], w[1]);
-        integral +=
-            0.5 * (b - a) * (modified_rational_q(a, qe, tc_s, tr_s) + modified_rational_q(b, qe, tc_s, tr_s));
+        integral += 0.5
+            * (b - a)
+            * (modified_rational_q(a, qe, tc_s, tr_s) + modified_rational_q(b, qe, tc_s, tr_s));
     }
     integral / (t1_s - t0_s)
 }

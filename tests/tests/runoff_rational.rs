@@ -4,8 +4,7 @@
 
 use holdback_core::runoff::rational::{self, CFS_PER_ACRE_IN_H, M2_PER_ACRE, M3S_PER_MM_H_HA};
 use holdback_core::runoff::{
-    AreaAcres, AreaHa, DesignFrequency, LandCoverMix, LandCoverPart, RunoffCoefficient,
-    RunoffError,
+    AreaAcres, AreaHa, DesignFrequency, LandCoverMix, LandCoverPart, RunoffCoefficient, RunoffError,
 };
 use holdback_tests::runoff64 as r64;
 use proptest::prelude::*;
@@ -103,7 +102,13 @@ fn weighted_c_hand_calculation() {
 /// 1.0 for ≤ 10 yr, 1.1 for 25, 1.2 for 50, 1.25 for 100, and C·Cf capped at 1.
 #[test]
 fn frequency_factor_table_and_cap() {
-    for (t, cf) in [(2.0, 1.0), (10.0, 1.0), (25.0, 1.1), (50.0, 1.2), (100.0, 1.25)] {
+    for (t, cf) in [
+        (2.0, 1.0),
+        (10.0, 1.0),
+        (25.0, 1.1),
+        (50.0, 1.2),
+        (100.0, 1.25),
+    ] {
         let f = DesignFrequency::from_return_period_yr(t).unwrap();
         assert_eq!(f.factor(), cf, "T = {t}");
         let adjusted = c(0.6).with_frequency(f).value();
@@ -122,6 +127,9 @@ fn validation_errors_name_field_and_value() {
     let e = AreaHa::new(-2.0).unwrap_err();
     assert_eq!(e.to_string(), "area_ha = -2: must be a finite number >= 0");
     assert!(AreaAcres::new(-2.0).is_err());
-    assert!(matches!(LandCoverMix::new(&[]), Err(RunoffError::Empty { .. })));
+    assert!(matches!(
+        LandCoverMix::new(&[]),
+        Err(RunoffError::Empty { .. })
+    ));
     assert!(DesignFrequency::from_return_period_yr(0.0).is_err());
 }

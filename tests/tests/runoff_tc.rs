@@ -19,7 +19,10 @@ fn kirpich_worked_by_hand() {
     let us = kirpich_us_min(1000.0, 0.01).unwrap();
     assert!((us - 9.3777).abs() < 1e-3, "{us}");
     assert!((r64::kirpich_min(0.0195, 1000.0, 0.01) - 23.444).abs() < 1e-3);
-    assert_eq!(TimeOfConcentration::kirpich_si(1000.0, 0.01).unwrap().s(), 1407); // 23.444 · 60
+    assert_eq!(
+        TimeOfConcentration::kirpich_si(1000.0, 0.01).unwrap().s(),
+        1407
+    ); // 23.444 · 60
 }
 
 /// The SI and US constants are one formula in two length units: 0.0078 · (1/0.3048)^0.77 =
@@ -80,7 +83,9 @@ proptest! {
 /// 0.15^(2/3) = e^(−1.264 75) = 0.282 31; V = 0.282 31 · 0.1 / 0.013 = 2.1716 m/s.
 #[test]
 fn full_pipe_velocity_by_hand() {
-    let v = Segment::full_pipe(120.0, 0.6, 0.01, 0.013).unwrap().velocity_m_s();
+    let v = Segment::full_pipe(120.0, 0.6, 0.01, 0.013)
+        .unwrap()
+        .velocity_m_s();
     assert!((v - 2.1716).abs() < 5e-4, "{v}");
     let v2 = manning_velocity_m_s(0.013, 0.15, 0.01).unwrap();
     assert!((v - v2).abs() < 1e-6);
@@ -94,7 +99,11 @@ fn sewered_tc_is_inlet_time_plus_pipe_travel() {
     let pipe = Segment::full_pipe(240.0, 0.6, 0.01, 0.013).unwrap();
     let path = FlowPath::new(300, &[Segment::at_velocity(120.0, 1.5).unwrap(), pipe]).unwrap();
     let expect = 300.0 + 120.0 / 1.5 + 240.0 / r64::manning_v(0.013, 0.15, 0.01);
-    assert!((path.tc().s() as f64 - expect).abs() <= 0.5, "{} vs {expect}", path.tc().s());
+    assert!(
+        (path.tc().s() as f64 - expect).abs() <= 0.5,
+        "{} vs {expect}",
+        path.tc().s()
+    );
     assert!((path.travel_s() as f64 - (expect - 300.0)).abs() < 1e-2);
     assert_eq!(path.inlet_s(), 300);
     assert_eq!(path.segments().len(), 2);
@@ -115,6 +124,12 @@ fn validation_errors() {
     assert!(Segment::full_pipe(10.0, -0.3, 0.01, 0.013).is_err());
     assert!(tc::manning_velocity_m_s(0.013, 0.0, 0.01).is_err());
     let e = Segment::at_velocity(10.0, 0.0).unwrap_err();
-    assert_eq!(e.to_string(), "velocity_m_s = 0: must be a finite number > 0");
-    assert!(matches!(FlowPath::new(0, &[]), Err(RunoffError::Invalid(_))));
+    assert_eq!(
+        e.to_string(),
+        "velocity_m_s = 0: must be a finite number > 0"
+    );
+    assert!(matches!(
+        FlowPath::new(0, &[]),
+        Err(RunoffError::Invalid(_))
+    ));
 }

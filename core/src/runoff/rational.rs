@@ -2,19 +2,19 @@
 //!
 //! ## Units and factors
 //!
-//! - SI: Q [m³/s] = C · i [mm/h] · A [ha] / 360, because
+//! - SI: Q \[m³/s\] = C · i \[mm/h\] · A \[ha\] / 360, because
 //!   1 mm/h · 1 ha = 0.001 m · 10 000 m² / 3600 s = 1/360 m³/s (1 ha = 10 000 m², 1 h = 3600 s).
-//! - US customary: Q [cfs] = 1.008 · C · i [in/h] · A [acres], because
+//! - US customary: Q \[cfs\] = 1.008 · C · i \[in/h\] · A \[acres\], because
 //!   1 acre · 1 in/h = 43 560 ft² · (1/12) ft / 3600 s = 1.008 33 ft³/s
 //!   (1 acre = 43 560 ft², 1 ft = 12 in). The factor is kept exact here ([`CFS_PER_ACRE_IN_H`]);
 //!   many texts drop it to 1.
 //!
 //! ## Invariants
 //!
-//! - A [`RunoffCoefficient`] is in [0, 1]; a frequency-adjusted one is capped at 1.
+//! - A [`RunoffCoefficient`] is in \[0, 1\]; a frequency-adjusted one is capped at 1.
 //! - An [`AreaHa`] / [`AreaAcres`] is finite and ≥ 0.
 //! - A [`LandCoverMix`] has 1..=[`MAX_LAND_COVER_PARTS`] parts and a total area > 0; its
-//!   coefficient is the area-weighted mean Σ Cₖ·Aₖ / Σ Aₖ, so it is in [0, 1] too.
+//!   coefficient is the area-weighted mean Σ Cₖ·Aₖ / Σ Aₖ, so it is in \[0, 1\] too.
 //! - Peak functions read a negative or NaN intensity as 0 (live input, never an error).
 
 use heapless::Vec;
@@ -37,14 +37,14 @@ pub const M2_PER_ACRE: f32 = 4_046.856_4;
 /// How many land-cover parts a [`LandCoverMix`] can hold.
 pub const MAX_LAND_COVER_PARTS: usize = 16;
 
-/// A runoff coefficient C, dimensionless, in [0, 1].
+/// A runoff coefficient C, dimensionless, in \[0, 1\].
 #[derive(Debug, Clone, Copy, PartialEq, PartialOrd)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[repr(transparent)]
 pub struct RunoffCoefficient(f32);
 
 impl RunoffCoefficient {
-    /// A coefficient; `c` must be finite and in [0, 1].
+    /// A coefficient; `c` must be finite and in \[0, 1\].
     pub fn new(c: f32) -> Result<Self, RunoffError> {
         Ok(Self(validate::within(
             "runoff_coefficient",
@@ -55,7 +55,7 @@ impl RunoffCoefficient {
         )?))
     }
 
-    /// The value, in [0, 1].
+    /// The value, in \[0, 1\].
     pub fn value(self) -> f32 {
         self.0
     }
@@ -120,12 +120,12 @@ impl AreaAcres {
     }
 }
 
-/// Rational peak in m³/s: C · i [mm/h] · A [ha] / 360. A negative or NaN intensity reads as 0.
+/// Rational peak in m³/s: C · i \[mm/h\] · A \[ha\] / 360. A negative or NaN intensity reads as 0.
 pub fn peak_m3s(c: RunoffCoefficient, intensity_mm_h: f32, area: AreaHa) -> f32 {
     c.0 * live_non_negative(intensity_mm_h) * area.0 * M3S_PER_MM_H_HA
 }
 
-/// Rational peak in cfs: 1.008 · C · i [in/h] · A [acres]. A negative or NaN intensity reads
+/// Rational peak in cfs: 1.008 · C · i \[in/h\] · A \[acres\]. A negative or NaN intensity reads
 /// as 0.
 pub fn peak_cfs(c: RunoffCoefficient, intensity_in_h: f32, area: AreaAcres) -> f32 {
     CFS_PER_ACRE_IN_H * c.0 * live_non_negative(intensity_in_h) * area.0
@@ -195,7 +195,7 @@ pub struct LandCoverPart {
 }
 
 impl LandCoverPart {
-    /// A part from raw numbers (`c` in [0, 1], `area_ha` ≥ 0).
+    /// A part from raw numbers (`c` in \[0, 1\], `area_ha` ≥ 0).
     pub fn new(c: f32, area_ha: f32) -> Result<Self, RunoffError> {
         Ok(Self {
             c: RunoffCoefficient::new(c)?,

@@ -17,8 +17,8 @@
 //! - Manning (SI): V = (1/n)·R^(2/3)·S^(1/2), R = flow area / wetted perimeter. Full circular
 //!   pipe: R = D/4. Rectangular channel at depth y: R = b·y/(b + 2y). Trapezoidal channel with
 //!   side slope z (horizontal per vertical): A = (b + z·y)·y, P = b + 2·y·√(1 + z²).
-//! - Kirpich (1940): tc [min] = 0.0078·L^0.77·S^−0.385 with L in ft, and the same formula with
-//!   L in m: tc [min] = 0.0195·L^0.77·S^−0.385 (0.0078 · 0.3048^−0.77 = 0.019 47). Constants
+//! - Kirpich (1940): tc \[min\] = 0.0078·L^0.77·S^−0.385 with L in ft, and the same formula with
+//!   L in m: tc \[min\] = 0.0195·L^0.77·S^−0.385 (0.0078 · 0.3048^−0.77 = 0.019 47). Constants
 //!   from memory.
 
 use heapless::Vec;
@@ -70,7 +70,7 @@ impl TimeOfConcentration {
         Self::from_s_f32("tc_min", tc_min, tc_min * 60.0)
     }
 
-    /// Rounds `seconds` (finite, in [0.5, MAX_TC_S]) to whole seconds; errors name `field`
+    /// Rounds `seconds` (finite, in \[0.5, MAX_TC_S\]) to whole seconds; errors name `field`
     /// and its `value` as the user gave it.
     fn from_s_f32(field: &'static str, value: f32, seconds: f32) -> Result<Self, RunoffError> {
         if seconds.is_finite() && seconds >= 0.5 && seconds <= MAX_TC_S as f32 {
@@ -107,14 +107,14 @@ impl TimeOfConcentration {
     }
 }
 
-/// Kirpich (1940), SI form: tc [min] = 0.0195·L^0.77·S^−0.385, L in m (> 0), S in m/m (> 0).
+/// Kirpich (1940), SI form: tc \[min\] = 0.0195·L^0.77·S^−0.385, L in m (> 0), S in m/m (> 0).
 pub fn kirpich_si_min(length_m: f32, slope_m_m: f32) -> Result<f32, RunoffError> {
     let l = validate::positive("length_m", length_m)?;
     let s = validate::positive("slope_m_m", slope_m_m)?;
     Ok(kirpich(KIRPICH_SI, l, s))
 }
 
-/// Kirpich (1940), US form: tc [min] = 0.0078·L^0.77·S^−0.385, L in ft (> 0), S in ft/ft (> 0).
+/// Kirpich (1940), US form: tc \[min\] = 0.0078·L^0.77·S^−0.385, L in ft (> 0), S in ft/ft (> 0).
 pub fn kirpich_us_min(length_ft: f32, slope_ft_ft: f32) -> Result<f32, RunoffError> {
     let l = validate::positive("length_ft", length_ft)?;
     let s = validate::positive("slope_ft_ft", slope_ft_ft)?;

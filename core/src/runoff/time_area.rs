@@ -7,7 +7,7 @@
 //! With time steps of `dt_s`, rain depth Pₙ (mm) in step n and ordinates Aₖ (m² of effective,
 //! fully contributing area, i.e. C·A shares), the mean inflow over step n is
 //!
-//! Qₙ [m³/s] = Σₖ 0.001·Pₙ₋ₖ·Aₖ / dt.
+//! Qₙ \[m³/s\] = Σₖ 0.001·Pₙ₋ₖ·Aₖ / dt.
 //!
 //! So Σ Qₙ·dt = 0.001·Σ P·Σ A: the convolution conserves volume exactly once the response has
 //! drained. Ordinates come either from user fractions (which must sum to 1 within 1 %, and are
@@ -64,7 +64,7 @@ fn step(dt_s: u32) -> Result<u32, RunoffError> {
     }
 }
 
-/// ∫ over [a, b] of F(u) = clamp((u − lag)/tc, 0, 1), in s.
+/// ∫ over \[a, b\] of F(u) = clamp((u − lag)/tc, 0, 1), in s.
 fn linear_time_area_integral(a: f32, b: f32, lag: f32, tc: f32) -> f32 {
     let p = if a > lag { a - lag } else { 0.0 };
     let q = if b < lag + tc { b - lag } else { tc };
@@ -173,8 +173,8 @@ impl TimeAreaResponse {
         self.ordinates_m2.iter().sum()
     }
 
-    /// Mean inflow per step (m³/s) for a whole hyetograph: `inflow_m3s[n]` =
-    /// Σₖ 0.001·rain_mm[n − k]·Aₖ / dt, rain beyond the end of `rain_mm` taken as 0 (so an
+    /// Mean inflow per step (m³/s) for a whole hyetograph: `inflow_m3s\[n\]` =
+    /// Σₖ 0.001·rain_mm\[n − k\]·Aₖ / dt, rain beyond the end of `rain_mm` taken as 0 (so an
     /// output longer than the rain holds the recession). Negative or NaN rain reads as 0.
     pub fn convolve(&self, rain_mm: &[f32], inflow_m3s: &mut [f32]) {
         let scale = M3_PER_MM_M2 / self.dt_s as f32;
