@@ -237,6 +237,24 @@ impl TimeAreaInflow {
         older_tail.iter().rev().chain(rest.iter().rev())
     }
 
+    /// Σ ords[k] · rain of age k (newest first), as two plain zipped loops over the ring's two
+    /// halves (the same terms in the same order as [`Self::newest_first`], so the same bits).
+    fn dot_newest_first(&self, ords: &[f32]) -> f32 {
+        let ring = self.ring();
+        let (recent, older) = ring
+            .split_at_checked(self.head.saturating_add(1))
+            .unwrap_or((ring, &[]));
+        let (o_recent, o_older) = ords.split_at_checked(recent.len()).unwrap_or((ords, &[]));
+        let acc = o_recent
+            .iter()
+            .zip(recent.iter().rev())
+            .fold(0.0_f32, |acc, (a, p)| acc + a * p);
+        o_older
+            .iter()
+            .zip(older.iter().rev())
+            .fold(acc, |acc, (a, p)| acc + a * p)
+    }
+
     /// Takes the rain depth (mm) of the step just ended and returns the mean inflow over that
     /// step, m³/s. Negative or NaN rain reads as 0.
     pub fn push_step(&mut self, rain_mm: f32) -> f32 {
@@ -256,12 +274,7 @@ impl TimeAreaInflow {
         let future = live_non_negative(rain_mm_per_step);
         let ords = &self.response.ordinates_m2;
         let from_future = ords.iter().take(ahead_steps).sum::<f32>() * future;
-        let from_past = ords
-            .iter()
-            .skip(ahead_steps)
-            .zip(self.newest_first())
-            .map(|(a, p)| a * p)
-            .sum::<f32>();
+        let from_past = self.dot_newest_first(ords.get(ahead_steps..).unwrap_or(&[]));
         (from_future + from_past) * (M3_PER_MM_M2 / self.response.dt_s as f32)
     }
 
