@@ -8,4 +8,5 @@
 pub mod hydraulics64;
 pub mod rain64;
 pub mod refdata;
+pub mod runoff64;
 pub mod storage64;
