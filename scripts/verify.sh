@@ -28,3 +28,19 @@ cargo test --workspace --locked
 
 step "benchmarks compile (run them with: cargo bench -p holdback-tests)"
 cargo bench -p holdback-tests --no-run --locked --quiet
+
+step "reference board: clippy and release image for thumbv7em-none-eabihf (mps2-an386)"
+cargo clippy -p holdback-firmware --target thumbv7em-none-eabihf --features board-qemu --locked -- -D warnings
+cargo build -p holdback-firmware --target thumbv7em-none-eabihf --features board-qemu --release --locked
+board_elf="$PWD/target/thumbv7em-none-eabihf/release/qemu_board"
+
+step "reference board under QEMU: host and device compute the same math bits"
+HOLDBACK_BOARD_ELF="$board_elf" cargo test -p holdback-tests --test qemu_board --locked -- --ignored
+
+step "guest instruction counts (qemu-icount plugin; exact and repeatable)"
+cargo fmt --manifest-path tools/qemu-icount/Cargo.toml --check
+cargo clippy --manifest-path tools/qemu-icount/Cargo.toml --target-dir target/tools --locked -- -D warnings
+bash scripts/qemu-icount.sh bench "$board_elf" 100
+
+step "size budget of the board image"
+bash scripts/size-report.sh "$board_elf"
