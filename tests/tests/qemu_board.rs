@@ -19,8 +19,11 @@ use std::process::Command;
 
 use holdback_core::math;
 
+/// A named `f32 -> f32` kernel of `holdback_core::math`.
+type Kernel = (&'static str, fn(f32) -> f32);
+
 /// Output order of the board's math probe, one `u32` each per input record.
-const KERNELS: [(&str, fn(f32) -> f32); 4] = [
+const KERNELS: [Kernel; 4] = [
     ("sqrt", math::sqrt),
     ("pow1_5", math::pow1_5),
     ("pow2_5", math::pow2_5),
