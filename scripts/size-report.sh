@@ -6,8 +6,9 @@
 # flash      = .vector_table + .text + .rodata + .data (the initialised data's load image)
 # static RAM = .data + .bss + .uninit + STACK_RESERVE_BYTES
 # cortex-m-rt's link.x reserves no stack: the stack grows down from the top of RAM into what
-# static data leaves free. STACK_RESERVE_BYTES (default 0) lets a caller count a stack
-# allowance against the RAM budget.
+# static data leaves free. STACK_RESERVE_BYTES (default 0) counts a stack allowance against
+# the RAM budget; scripts/verify.sh passes the high-water mark the board itself measures
+# (it paints its stack at boot and prints `stack: N bytes used` at exit).
 # Budget (override with FLASH_BUDGET_BYTES / RAM_BUDGET_BYTES): flash <= 48 KiB,
 # static RAM <= 12 KiB. Exit status 1 when over budget, 2 when the tools or ELF are missing.
 # Sizes come from llvm-size (rustup component llvm-tools, which .ci/run installs); a
@@ -55,7 +56,7 @@ ram=$((data + bss + uninit + stack))
 kib() { awk -v b="$1" 'BEGIN{printf "%.2f KiB", b/1024}'; }
 echo "size report: $elf ($(basename "$size_tool"))"
 printf '  %-14s %8d\n' .vector_table "$vt" .text "$text" .rodata "$rodata" .data "$data" \
-    .bss "$bss" .uninit "$uninit" "stack reserve" "$stack"
+    .bss "$bss" .uninit "$uninit" "stack allowance" "$stack"
 printf '  flash      %8d bytes (%s) of %d (%s)\n' "$flash" "$(kib "$flash")" "$flash_budget" "$(kib "$flash_budget")"
 printf '  static RAM %8d bytes (%s) of %d (%s)\n' "$ram" "$(kib "$ram")" "$ram_budget" "$(kib "$ram_budget")"
 

@@ -42,5 +42,15 @@ cargo fmt --manifest-path tools/qemu-icount/Cargo.toml --check
 cargo clippy --manifest-path tools/qemu-icount/Cargo.toml --target-dir target/tools --locked -- -D warnings
 bash scripts/qemu-icount.sh bench "$board_elf" 100
 
-step "size budget of the board image"
-bash scripts/size-report.sh "$board_elf"
+step "size budget of the board image (static data + the measured stack high-water mark)"
+# The deepest stack over both commands, as the board's painted high-water mark reports it.
+probe_dir=$(mktemp -d)
+printf '\x00\x00\x00\x3f\x00\x00\x80\x40' >"$probe_dir/in.bin" # 0.5 and 4.0 as f32 LE
+stack_bytes=$(
+    {
+        bash scripts/qemu-run.sh "$board_elf" run "$probe_dir/in.bin" "$probe_dir/out.bin"
+        for k in none sqrt pow1_5 pow2_5 powf1_5; do bash scripts/qemu-run.sh "$board_elf" bench "$k" 1; done
+    } | awk '/^stack: /{if ($2 > m) m = $2} END {print m + 0}'
+)
+rm -rf "$probe_dir"
+STACK_RESERVE_BYTES=$stack_bytes bash scripts/size-report.sh "$board_elf"

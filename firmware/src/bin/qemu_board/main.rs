@@ -13,6 +13,9 @@
 //!   `N·BENCH_STAGES`, is the exact cost of one loop iteration; `none` gives the loop's own
 //!   cost (see `scripts/qemu-icount.sh`).
 //!
+//! At exit the board prints `stack: N bytes used` (the painted high-water mark, see
+//! [`stack`]) to stderr.
+//!
 //! Exit status: 0 done, 1 usage, 2 input, 3 output, 4 input not a whole number of records,
 //! 101 panic (the `semihosting` crate's panic handler; no panic is reachable by design).
 //!
@@ -30,6 +33,7 @@
     clippy::unreachable
 )]
 
+mod stack;
 mod step;
 
 use core::ffi::CStr;
@@ -55,10 +59,12 @@ enum Exit {
 
 #[cortex_m_rt::entry]
 fn main() -> ! {
+    stack::paint();
     let code = match dispatch() {
         Ok(()) => 0,
         Err(e) => e as i32,
     };
+    semihosting::eprintln!("stack: {} bytes used", stack::used_bytes());
     semihosting::process::exit(code)
 }
 
@@ -99,9 +105,7 @@ fn run_files<S: Step>(step: &mut S, input: &str, output: &str) -> Result<(), Exi
     let mut buf = [0_u8; 256];
     loop {
         let filled = fill(&mut inp, &mut buf)?;
-        let whole = filled
-            .checked_sub(filled.checked_rem(S::RECORD_IN).unwrap_or(0))
-            .unwrap_or(0);
+        let whole = filled.saturating_sub(filled.checked_rem(S::RECORD_IN).unwrap_or(0));
         let chunk = buf.get(..whole).unwrap_or(&[]);
         step.run(chunk, &mut out).map_err(|_| Exit::Output)?;
         if whole != filled {
