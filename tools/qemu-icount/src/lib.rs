@@ -85,10 +85,10 @@ extern "C" fn at_exit(_id: PluginId, _userdata: *mut c_void) {
         // SAFETY: a valid NUL-terminated string that outlives the call.
         unsafe { qemu_plugin_outs(c.as_ptr()) };
     }
-    if let Some(path) = OUTFILE.get() {
-        if let Err(e) = std::fs::write(path, line) {
-            eprintln!("qemu-icount: cannot write {path}: {e}");
-        }
+    if let Some(path) = OUTFILE.get()
+        && let Err(e) = std::fs::write(path, line)
+    {
+        eprintln!("qemu-icount: cannot write {path}: {e}");
     }
 }
 
