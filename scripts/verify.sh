@@ -28,3 +28,29 @@ cargo test --workspace --locked
 
 step "benchmarks compile (run them with: cargo bench -p holdback-tests)"
 cargo bench -p holdback-tests --no-run --locked --quiet
+
+step "reference board: clippy and release image for thumbv7em-none-eabihf (mps2-an386)"
+cargo clippy -p holdback-firmware --target thumbv7em-none-eabihf --features board-qemu --locked -- -D warnings
+cargo build -p holdback-firmware --target thumbv7em-none-eabihf --features board-qemu --release --locked
+board_elf="$PWD/target/thumbv7em-none-eabihf/release/qemu_board"
+
+step "reference board under QEMU: host and device compute the same math bits"
+HOLDBACK_BOARD_ELF="$board_elf" cargo test -p holdback-tests --test qemu_board --locked -- --ignored
+
+step "guest instruction counts (qemu-icount plugin; exact and repeatable)"
+cargo fmt --manifest-path tools/qemu-icount/Cargo.toml --check
+cargo clippy --manifest-path tools/qemu-icount/Cargo.toml --target-dir target/tools --locked -- -D warnings
+bash scripts/qemu-icount.sh bench "$board_elf" 100
+
+step "size budget of the board image (static data + the measured stack high-water mark)"
+# The deepest stack over both commands, as the board's painted high-water mark reports it.
+probe_dir=$(mktemp -d)
+printf '\x00\x00\x00\x3f\x00\x00\x80\x40' >"$probe_dir/in.bin" # 0.5 and 4.0 as f32 LE
+stack_bytes=$(
+    {
+        bash scripts/qemu-run.sh "$board_elf" run "$probe_dir/in.bin" "$probe_dir/out.bin"
+        for k in none sqrt pow1_5 pow2_5 powf1_5; do bash scripts/qemu-run.sh "$board_elf" bench "$k" 1; done
+    } | awk '/^stack: /{if ($2 > m) m = $2} END {print m + 0}'
+)
+rm -rf "$probe_dir"
+STACK_RESERVE_BYTES=$stack_bytes bash scripts/size-report.sh "$board_elf"
