@@ -121,7 +121,11 @@ pub fn trapezoid_critical(b: f64, z: f64, e: f64, t: f64) -> f64 {
     }
     let yc = 0.5 * (lo + hi);
     if t > yc {
-        if t >= e { 0.0 } else { area(t) * (2.0 * G * (e - t)).sqrt() }
+        if t >= e {
+            0.0
+        } else {
+            area(t) * (2.0 * G * (e - t)).sqrt()
+        }
     } else {
         (G * area(yc).powi(3) / top(yc)).sqrt()
     }
@@ -133,7 +137,11 @@ pub fn broad_crested_weir(crest: f64, b: f64, cd: f64, stage: f64, tw: Option<f6
     if h <= 0.0 {
         0.0
     } else if t > 2.0 * h / 3.0 {
-        if t >= h { 0.0 } else { cd * b * t * (2.0 * G * (h - t)).sqrt() }
+        if t >= h {
+            0.0
+        } else {
+            cd * b * t * (2.0 * G * (h - t)).sqrt()
+        }
     } else {
         cd * b * G.sqrt() * (2.0 * h / 3.0).powf(1.5)
     }
@@ -183,5 +191,9 @@ pub fn sluice_gate(
     }
     let j = (cc * a).min((2.0 * h / 3.0).max(t));
     let dh = h - j.max(t);
-    if dh <= 0.0 { 0.0 } else { cv * b * j * (2.0 * G * dh).sqrt() }
+    if dh <= 0.0 {
+        0.0
+    } else {
+        cv * b * j * (2.0 * G * dh).sqrt()
+    }
 }

@@ -13,15 +13,29 @@ const ABS: f64 = 1e-6;
 fn close(got: f32, want: f64, what: &str) -> f64 {
     let got = got as f64;
     let err = (got - want).abs();
-    assert!(err <= REL * want.abs() || err <= ABS, "{what}: core {got} vs f64 {want}");
-    if want.abs() > ABS { err / want.abs() } else { 0.0 }
+    assert!(
+        err <= REL * want.abs() || err <= ABS,
+        "{what}: core {got} vs f64 {want}"
+    );
+    if want.abs() > ABS {
+        err / want.abs()
+    } else {
+        0.0
+    }
 }
 
 fn stages(lo: f32, hi: f32, n: usize) -> impl Iterator<Item = f32> {
     (0..=n).map(move |i| lo + (hi - lo) * i as f32 / n as f32)
 }
 
-const TAILS: [Option<f32>; 6] = [None, Some(-5.0), Some(0.1), Some(0.35), Some(0.9), Some(2.5)];
+const TAILS: [Option<f32>; 6] = [
+    None,
+    Some(-5.0),
+    Some(0.1),
+    Some(0.35),
+    Some(0.9),
+    Some(2.5),
+];
 
 /// Orifice equation `Q = Cd·A·√(2gH)` with H on the centroid (source: Torricelli's theorem,
 /// v = √(2gH), times the discharge coefficient), for a range of heads; and the ideal (Cd = 1)
@@ -36,10 +50,17 @@ fn full_orifices_follow_the_orifice_equation_and_torricelli() {
             let h = stage as f64 - d as f64 / 2.0;
             let a = std::f64::consts::PI * (d as f64).powi(2) / 4.0;
             let want = cd as f64 * a * (2.0 * r64::G * h).sqrt();
-            close(o.discharge_m3s(stage, None), want, "circular orifice equation");
+            close(
+                o.discharge_m3s(stage, None),
+                want,
+                "circular orifice equation",
+            );
             if cd == 1.0 {
                 let v = o.discharge_m3s(stage, None) as f64 / a;
-                assert!((v / (2.0 * r64::G * h).sqrt() - 1.0).abs() < 1e-6, "Torricelli");
+                assert!(
+                    (v / (2.0 * r64::G * h).sqrt() - 1.0).abs() < 1e-6,
+                    "Torricelli"
+                );
             }
         }
     }
@@ -55,7 +76,11 @@ fn full_orifices_follow_the_orifice_equation_and_torricelli() {
 #[test]
 fn orifices_match_f64_reference_free_partly_full_and_submerged() {
     let mut worst = 0.0_f64;
-    for &(inv, d, cd) in &[(0.0_f32, 0.3_f32, 0.6_f32), (0.2, 0.9, 0.62), (-0.3, 0.05, 0.8)] {
+    for &(inv, d, cd) in &[
+        (0.0_f32, 0.3_f32, 0.6_f32),
+        (0.2, 0.9, 0.62),
+        (-0.3, 0.05, 0.8),
+    ] {
         let c = CircularOrifice::new(inv, d, cd).unwrap();
         let r = RectangularOrifice::new(inv, 1.3 * d, d, cd).unwrap();
         for tw in TAILS {
@@ -216,7 +241,13 @@ fn broad_crested_and_spillway_follow_critical_depth_theory() {
     let e = 0.8_f32;
     let yc = sp.critical_depth_m(e) as f64;
     let (a, t) = ((3.0 + 2.0 * yc) * yc, 3.0 + 4.0 * yc);
-    assert!(((yc + a / (2.0 * t)) / e as f64 - 1.0).abs() < 1e-6, "energy at critical depth");
+    assert!(
+        ((yc + a / (2.0 * t)) / e as f64 - 1.0).abs() < 1e-6,
+        "energy at critical depth"
+    );
     let q = sp.discharge_m3s(e, None) as f64;
-    assert!((q * q * t / (r64::G * a * a * a) - 1.0).abs() < 1e-5, "Froude 1");
+    assert!(
+        (q * q * t / (r64::G * a * a * a) - 1.0).abs() < 1e-5,
+        "Froude 1"
+    );
 }
