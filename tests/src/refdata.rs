@@ -7,7 +7,9 @@ use std::path::PathBuf;
 
 /// Path of a file under `tests/reference/`.
 pub fn path(rel: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("reference").join(rel)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("reference")
+        .join(rel)
 }
 
 /// A numeric CSV table: header names and rows of `f64`, `#` comment lines skipped.
@@ -28,16 +30,18 @@ impl Table {
             .lines()
             .enumerate()
             .filter(|(_, l)| !l.trim_start().starts_with('#') && !l.trim().is_empty());
-        let (_, header) = lines.next().ok_or_else(|| format!("{}: no header", p.display()))?;
+        let (_, header) = lines
+            .next()
+            .ok_or_else(|| format!("{}: no header", p.display()))?;
         let columns: Vec<String> = header.split(',').map(|c| c.trim().to_string()).collect();
         let mut rows = Vec::new();
         for (n, line) in lines {
             let row: Result<Vec<f64>, String> = line
                 .split(',')
                 .map(|c| {
-                    c.trim().parse::<f64>().map_err(|e| {
-                        format!("{}:{}: cell {c:?}: {e}", p.display(), n + 1)
-                    })
+                    c.trim()
+                        .parse::<f64>()
+                        .map_err(|e| format!("{}:{}: cell {c:?}: {e}", p.display(), n + 1))
                 })
                 .collect();
             let row = row?;
