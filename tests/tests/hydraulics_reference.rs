@@ -251,3 +251,36 @@ fn broad_crested_and_spillway_follow_critical_depth_theory() {
         "Froude 1"
     );
 }
+
+/// Free gate underflow conserves energy from the pond to the vena contracta (source:
+/// Bernoulli's equation, h = j + V²/2g with j = Cc·a and V = Q/(b·j), Cv = 1); its maximum
+/// over the opening is critical flow, Froude number 1 at the jet (source: critical-depth
+/// theory), reached exactly where the gate clears (Cc·a = 2h/3).
+#[test]
+fn gate_underflow_conserves_energy_and_peaks_at_critical_flow() {
+    let (b, cc) = (1.5_f32, 0.61_f32);
+    let g = SluiceGate::new(0.0, b, 3.0, cc, 1.0).unwrap();
+    for h in [0.4_f32, 1.0, 2.5] {
+        for frac in [0.05_f32, 0.2, 0.5, 0.9] {
+            let a = frac * g.clear_opening_m(h);
+            let q = g.discharge_m3s(h, a, None) as f64;
+            let j = (cc * a) as f64;
+            let v = q / (b as f64 * j);
+            let e = j + v * v / (2.0 * r64::G);
+            assert!(
+                (e / h as f64 - 1.0).abs() < 1e-5,
+                "energy at vena contracta"
+            );
+        }
+        let a = g.clear_opening_m(h);
+        let q = g.discharge_m3s(h, a, None) as f64;
+        let j = (cc * a) as f64;
+        let froude = q / (b as f64 * j) / (r64::G * j).sqrt();
+        assert!((froude - 1.0).abs() < 1e-5, "critical at the clear point");
+        // the underflow coefficient form: Q = Cd·b·a·√(2gh)
+        let a = 0.3 * g.clear_opening_m(h);
+        let cd = g.underflow_cd(h, a) as f64;
+        let q_cd = cd * b as f64 * a as f64 * (2.0 * r64::G * h as f64).sqrt();
+        assert!((q_cd / g.discharge_m3s(h, a, None) as f64 - 1.0).abs() < 1e-5);
+    }
+}

@@ -8,9 +8,10 @@
 //!
 //! The inverse [`Outlet::opening_for`] bisects the gate opening on `[0, max_opening_m]` for
 //! exactly [`MAX_INVERSE_ITERATIONS`] halvings at most (it stops early once the bracket is an
-//! ulp wide), after evaluating the fixed structures once. It returns the smallest opening whose
-//! discharge reaches the target (the gate law is flat once the gate clears the water, so
-//! larger openings may give the same flow), exact at the bounds.
+//! ulp wide), after evaluating the fixed structures once. Inside the range it returns the
+//! smallest opening whose discharge reaches the target (the gate law is flat once the gate
+//! clears the water, so larger openings may give the same flow); at the bounds it is exact
+//! (closed-gate flow → 0, full-open flow → `max_opening_m`).
 
 use crate::flow::StageDischarge;
 use crate::hydraulics::{
@@ -184,10 +185,10 @@ impl Outlet {
 
     /// The gate opening (m) giving total discharge `target_m3s` at `stage_m`.
     ///
-    /// Exact at the bounds: a target equal to the closed-gate flow gives 0, one equal to the
-    /// full-open flow gives the max opening (or the smallest opening reaching it). Otherwise
-    /// bisection, at most [`MAX_INVERSE_ITERATIONS`] steps, returning the upper end of the
-    /// final bracket (its discharge is ≥ the target). Errors: [`HydraulicsError::NoGate`];
+    /// Exact at the bounds: a target equal to the closed-gate flow gives 0 (checked first),
+    /// one equal to the full-open flow gives `max_opening_m`. Otherwise bisection, at most
+    /// [`MAX_INVERSE_ITERATIONS`] steps, returning the upper end of the final bracket: the
+    /// smallest opening (to f32 resolution) whose discharge reaches the target. Errors: [`HydraulicsError::NoGate`];
     /// [`HydraulicsError::Unreachable`] with the closed/open range when the target is outside
     /// it; [`HydraulicsError::Invalid`] for a NaN or infinite target.
     pub fn opening_for(&self, stage_m: f32, target_m3s: f32) -> Result<f32, HydraulicsError> {
@@ -205,6 +206,9 @@ impl Outlet {
         let q_open = fixed + gate.discharge_m3s(stage_m, max_a, self.tailwater_m);
         if target_m3s == fixed {
             return Ok(0.0);
+        }
+        if target_m3s == q_open {
+            return Ok(max_a);
         }
         if target_m3s < fixed || target_m3s > q_open {
             return Err(HydraulicsError::Unreachable {
