@@ -13,7 +13,12 @@ fn demo_outlet() -> Outlet {
     let riser = Riser::circular(101.2, 1.2, 0.6, 0.6).unwrap();
     let spillway = Spillway::new(102.0, 8.0, 3.0, 0.9).unwrap();
     let gate = SluiceGate::new(100.0, 0.6, 0.6, 0.61, 0.98).unwrap();
-    Outlet::new(&[orifice.into(), riser.into(), spillway.into()], Some(gate), Some(100.3)).unwrap()
+    Outlet::new(
+        &[orifice.into(), riser.into(), spillway.into()],
+        Some(gate),
+        Some(100.3),
+    )
+    .unwrap()
 }
 
 fn bench(c: &mut Criterion) {
