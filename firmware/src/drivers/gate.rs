@@ -1,0 +1,1 @@
+//! Gate actuator (being written).
