@@ -22,6 +22,7 @@
 #![warn(missing_docs)]
 
 pub mod drivers;
+pub mod eventlog;
 
 /// A stage reading from an analog front end, before any filtering.
 ///
