@@ -118,7 +118,7 @@ fn when_full_the_oldest_records_go_first() {
     assert!(recs.len() >= 12 && recs.len() < 100, "{}", recs.len());
     let first = recs[0].seq;
     assert_eq!(recs, (first..100).map(expected).collect::<Vec<_>>());
-    drop(log);
+    let _ = log.release();
     let (dumped, corrupt) = dump_records(flash.image());
     assert_eq!(dumped, recs);
     assert_eq!(corrupt, 0);

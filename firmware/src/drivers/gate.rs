@@ -232,6 +232,10 @@ impl<E: fmt::Debug, A: fmt::Debug> fmt::Display for Error<E, A> {
 
 impl<E: fmt::Debug, A: fmt::Debug> core::error::Error for Error<E, A> {}
 
+/// What [`Gate::new`] gives back when it cannot stop the motor: the error, the pins and
+/// the position input.
+pub type NewError<E, A, OP, CL, LC, LO, POS> = (Error<E, A>, GatePins<OP, CL, LC, LO>, POS);
+
 /// The gate actuator.
 pub struct Gate<OP, CL, LC, LO, POS> {
     pins: GatePins<OP, CL, LC, LO>,
@@ -250,11 +254,13 @@ where
     POS: AnalogInput,
 {
     /// Take the pins and the position input; sets both drive pins low.
+    /// On a pin error the pins and input come back with the error.
+    #[allow(clippy::type_complexity)] // the error hands back every part taken
     pub fn new(
         mut pins: GatePins<OP, CL, LC, LO>,
         position: POS,
         config: GateConfig,
-    ) -> Result<Self, (Error<E, POS::Error>, GatePins<OP, CL, LC, LO>, POS)> {
+    ) -> Result<Self, NewError<E, POS::Error, OP, CL, LC, LO, POS>> {
         let stopped = pins
             .drive_open
             .set_low()
@@ -442,10 +448,11 @@ where
                 };
             }
         }
-        if !matches!(self.state, GateState::Seeking { .. }) && self.driving.is_some() {
-            if let Err(e) = self.drive(None) {
-                return self.fail(e);
-            }
+        if !matches!(self.state, GateState::Seeking { .. })
+            && self.driving.is_some()
+            && let Err(e) = self.drive(None)
+        {
+            return self.fail(e);
         }
         Ok(GateStatus {
             opening,

@@ -76,14 +76,14 @@ impl Geometry {
     ) -> Result<Self, GeometryError> {
         let ok_word = (1..=32).contains(&read_size)
             && (1..=32).contains(&write_size)
-            && (read_size % write_size == 0 || write_size % read_size == 0);
+            && (read_size.is_multiple_of(write_size) || write_size.is_multiple_of(read_size));
         if !ok_word {
             return Err(GeometryError::WordSize);
         }
         let word = read_size.max(write_size);
         let header = HEADER_LEN.next_multiple_of(word);
         let min = word.saturating_mul(3).saturating_add(header);
-        if erase_size % word != 0 || erase_size < min {
+        if !erase_size.is_multiple_of(word) || erase_size < min {
             return Err(GeometryError::PageSize);
         }
         Ok(Self {
@@ -156,10 +156,10 @@ pub struct DumpReader<'a> {
 impl<'a> DumpReader<'a> {
     /// Read `image`, a dump of the whole queue range, with the flash's geometry.
     pub fn new(image: &'a [u8], g: Geometry) -> Result<Self, GeometryError> {
-        if image.is_empty() || image.len() % g.erase_size != 0 {
+        if image.is_empty() || !image.len().is_multiple_of(g.erase_size) {
             return Err(GeometryError::ImageLength(image.len()));
         }
-        let pages = image.len() / g.erase_size;
+        let pages = image.len().checked_div(g.erase_size).unwrap_or(0);
         let mut r = Self {
             image,
             g,
@@ -191,7 +191,7 @@ impl<'a> DumpReader<'a> {
 
     fn first_from(&self, from: usize, state: PageState) -> Option<usize> {
         (0..self.pages)
-            .map(|k| (from.saturating_add(k)) % self.pages)
+            .map(|k| from.saturating_add(k).checked_rem(self.pages).unwrap_or(0))
             .find(|&p| self.page_state(p) == state)
     }
 
@@ -295,7 +295,11 @@ impl Iterator for DumpReader<'_> {
             if self.visited >= self.pages {
                 return None;
             }
-            let page = self.oldest.saturating_add(self.visited) % self.pages;
+            let page = self
+                .oldest
+                .saturating_add(self.visited)
+                .checked_rem(self.pages)
+                .unwrap_or(0);
             self.visited = self.visited.saturating_add(1);
             let start = page.saturating_mul(self.g.erase_size);
             match self.page_state(page) {

@@ -148,7 +148,7 @@ impl<const SIZE: usize, const READ: usize, const WRITE: usize, const ERASE: usiz
         align: usize,
     ) -> Result<core::ops::Range<usize>, RamFlashError> {
         let start = usize::try_from(offset).map_err(|_| RamFlashError::OutOfBounds)?;
-        if align == 0 || start % align != 0 || len % align != 0 {
+        if align == 0 || !start.is_multiple_of(align) || !len.is_multiple_of(align) {
             return Err(RamFlashError::NotAligned);
         }
         let end = start.checked_add(len).ok_or(RamFlashError::OutOfBounds)?;
