@@ -54,26 +54,14 @@ pub fn powf(x: f32, y: f32) -> f32 {
 /// of weir laws. Zero or negative `h` gives 0 (no head, no flow), NaN gives NaN.
 #[inline]
 pub fn pow1_5(h: f32) -> f32 {
-    if h > 0.0 {
-        h * sqrt(h)
-    } else if h.is_nan() {
-        h
-    } else {
-        0.0
-    }
+    if h > 0.0 { h * sqrt(h) } else if h.is_nan() { h } else { 0.0 }
 }
 
 /// `h^2.5` computed as `h²·√h`, the power of the V-notch weir law. Zero or negative `h`
 /// gives 0, NaN gives NaN.
 #[inline]
 pub fn pow2_5(h: f32) -> f32 {
-    if h > 0.0 {
-        h * h * sqrt(h)
-    } else if h.is_nan() {
-        h
-    } else {
-        0.0
-    }
+    if h > 0.0 { h * h * sqrt(h) } else if h.is_nan() { h } else { 0.0 }
 }
 
 /// e^x (libm `expf`).

@@ -32,11 +32,7 @@ pub fn finite(field: &'static str, value: f32) -> Result<f32, Invalid> {
     if value.is_finite() {
         Ok(value)
     } else {
-        Err(Invalid {
-            field,
-            value,
-            rule: "must be a finite number",
-        })
+        Err(Invalid { field, value, rule: "must be a finite number" })
     }
 }
 
@@ -45,11 +41,7 @@ pub fn positive(field: &'static str, value: f32) -> Result<f32, Invalid> {
     if value.is_finite() && value > 0.0 {
         Ok(value)
     } else {
-        Err(Invalid {
-            field,
-            value,
-            rule: "must be a finite number > 0",
-        })
+        Err(Invalid { field, value, rule: "must be a finite number > 0" })
     }
 }
 
@@ -58,11 +50,7 @@ pub fn non_negative(field: &'static str, value: f32) -> Result<f32, Invalid> {
     if value.is_finite() && value >= 0.0 {
         Ok(value)
     } else {
-        Err(Invalid {
-            field,
-            value,
-            rule: "must be a finite number >= 0",
-        })
+        Err(Invalid { field, value, rule: "must be a finite number >= 0" })
     }
 }
 
@@ -71,11 +59,7 @@ pub fn coefficient(field: &'static str, value: f32) -> Result<f32, Invalid> {
     if value.is_finite() && value > 0.0 && value <= 1.0 {
         Ok(value)
     } else {
-        Err(Invalid {
-            field,
-            value,
-            rule: "must be in (0, 1]",
-        })
+        Err(Invalid { field, value, rule: "must be in (0, 1]" })
     }
 }
 
@@ -102,10 +86,7 @@ mod tests {
     #[test]
     fn error_text_names_field_value_and_rule() {
         let e = positive("width_m", -0.4).unwrap_err();
-        assert_eq!(
-            format!("{e}"),
-            "width_m = -0.4: must be a finite number > 0"
-        );
+        assert_eq!(format!("{e}"), "width_m = -0.4: must be a finite number > 0");
     }
 
     #[test]
