@@ -1,8 +1,9 @@
 //! TI ADS1115: 16-bit delta-sigma ADC on I2C, used in single-shot mode.
 //!
 //! Register protocol from the TI datasheet (SBAS444, "ADS111x Ultra-Small, Low-Power,
-//! I2C-Compatible, 860-SPS, 16-Bit ADCs"); section names are the datasheet's, section numbers
-//! from memory:
+//! I2C-Compatible, 860-SPS, 16-Bit ADCs"), written from memory of it; the section names
+//! below are the datasheet's as recalled, and the bit values are checked in the tests against
+//! the datasheet's documented reset value `0x8583`:
 //!
 //! - *Register Map / Address Pointer Register*: the first byte after the address selects the
 //!   register: `0x00` Conversion, `0x01` Config, `0x02` Lo_thresh, `0x03` Hi_thresh.
