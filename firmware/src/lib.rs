@@ -5,7 +5,7 @@
 //! only adapts it to pins, buses, flash and clocks.
 //!
 //! Same promises as the core: `#![no_std]`, no heap, no panics on any input.
-#![no_std]
+#![cfg_attr(not(test), no_std)]
 #![cfg_attr(
     not(test),
     deny(
@@ -20,6 +20,9 @@
     )
 )]
 #![warn(missing_docs)]
+
+pub mod drivers;
+pub mod eventlog;
 
 /// A stage reading from an analog front end, before any filtering.
 ///
