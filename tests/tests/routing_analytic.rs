@@ -25,7 +25,11 @@ fn torricelli_stage(t: f64, h0: f64) -> f64 {
 fn torricelli_max_error(dt_s: u32) -> f64 {
     let pond = prismatic();
     let outlet = |h: f32| {
-        if h > 0.0 { (CD * A_ORIFICE) as f32 * holdback_core::math::sqrt(2.0 * G_M_S2 * h) } else { 0.0 }
+        if h > 0.0 {
+            (CD * A_ORIFICE) as f32 * holdback_core::math::sqrt(2.0 * G_M_S2 * h)
+        } else {
+            0.0
+        }
     };
     let h0 = 2.0;
     let mut s = pond.storage_m3(h0 as f32);
@@ -92,7 +96,10 @@ fn stiff_linear_reservoir_reaches_equilibrium_without_overshoot() {
     let eq = 0.4 * k;
     for _ in 0..20 {
         let r = step(&pond, &outlet, s, Inflow::steady(0.4), 300);
-        assert!(r.storage_m3 >= s - 1e-4 && r.storage_m3 <= eq * (1.0 + 1e-4), "{r:?}");
+        assert!(
+            r.storage_m3 >= s - 1e-4 && r.storage_m3 <= eq * (1.0 + 1e-4),
+            "{r:?}"
+        );
         s = r.storage_m3;
     }
     assert!((s - eq).abs() < eq * 1e-3);

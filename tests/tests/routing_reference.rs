@@ -81,7 +81,12 @@ fn reference() -> Reference {
         tab.col("outflow_m3s").unwrap(),
         tab.col("stage_m").unwrap(),
     );
-    let basin = Basin64 { floor_m: 100.0, length_m: 40.0, width_m: 20.0, z: 3.0 };
+    let basin = Basin64 {
+        floor_m: 100.0,
+        length_m: 40.0,
+        width_m: 20.0,
+        z: 3.0,
+    };
     // Check the reference against the formulas it cites: storage column = prismoidal volume
     // of the stage column, outflow column = orifice + weir at that stage.
     for r in &tab.rows {
@@ -109,18 +114,19 @@ fn route_errors(dt_s: u32) -> (f64, f64, f64) {
     let mut last: Option<StepResult> = None;
     for (k, &tk) in r.t.iter().enumerate().skip(1) {
         while (t as f64) < tk {
-            let inflow_step = Inflow::ramp(inflow(t as f64) as f32, inflow((t + dt_s) as f64) as f32);
+            let inflow_step =
+                Inflow::ramp(inflow(t as f64) as f32, inflow((t + dt_s) as f64) as f32);
             let res = step(&p, &outlet, s, inflow_step, dt_s);
             s = res.storage_m3;
             t += dt_s;
             last = Some(res);
         }
-        if let Some(res) = last {
-            if t as f64 == tk {
-                es = es.max((res.storage_m3 as f64 - r.storage[k]).abs() / s_peak);
-                eq = eq.max((res.outflow_m3s as f64 - r.outflow[k]).abs() / q_peak);
-                eh = eh.max((res.stage_m as f64 - r.stage[k]).abs());
-            }
+        if let Some(res) = last
+            && t as f64 == tk
+        {
+            es = es.max((res.storage_m3 as f64 - r.storage[k]).abs() / s_peak);
+            eq = eq.max((res.outflow_m3s as f64 - r.outflow[k]).abs() / q_peak);
+            eh = eh.max((res.stage_m as f64 - r.stage[k]).abs());
         }
     }
     (es, eq, eh)
@@ -134,10 +140,19 @@ fn route_errors(dt_s: u32) -> (f64, f64, f64) {
 /// weir starts to flow: the trapezoid cannot resolve the onset of the H^1.5 law inside a step.
 #[test]
 fn routed_pond_matches_scipy_solve_ivp() {
-    for (dt, tol_s, tol_q, tol_h) in [(10, 1e-4, 2e-4, 1e-4), (60, 5e-4, 2e-3, 1e-3), (300, 5e-3, 2.5e-2, 1e-2)] {
+    for (dt, tol_s, tol_q, tol_h) in [
+        (10, 1e-4, 2e-4, 1e-4),
+        (60, 5e-4, 2e-3, 1e-3),
+        (300, 5e-3, 2.5e-2, 1e-2),
+    ] {
         let (es, eq, eh) = route_errors(dt);
-        println!("dt = {dt} s: storage {es:.2e} of peak, outflow {eq:.2e} of peak, stage {eh:.2e} m");
-        assert!(es < tol_s && eq < tol_q && eh < tol_h, "dt = {dt}: {es} {eq} {eh}");
+        println!(
+            "dt = {dt} s: storage {es:.2e} of peak, outflow {eq:.2e} of peak, stage {eh:.2e} m"
+        );
+        assert!(
+            es < tol_s && eq < tol_q && eh < tol_h,
+            "dt = {dt}: {es} {eq} {eh}"
+        );
     }
 }
 
@@ -149,14 +164,30 @@ fn routed_pond_matches_scipy_solve_ivp() {
 #[test]
 fn f32_routing_matches_f64_rk4_reference() {
     let p = pond();
-    let basin = Basin64 { floor_m: 100.0, length_m: 40.0, width_m: 20.0, z: 3.0 };
+    let basin = Basin64 {
+        floor_m: 100.0,
+        length_m: 40.0,
+        width_m: 20.0,
+        z: 3.0,
+    };
     let s0 = basin.storage_m3(100.15);
-    let ref64 = rk4_route(|s| basin.stage_m(s), outlet64, inflow, s0, 1.0, 10.0, 14_400.0);
+    let ref64 = rk4_route(
+        |s| basin.stage_m(s),
+        outlet64,
+        inflow,
+        s0,
+        1.0,
+        10.0,
+        14_400.0,
+    );
     // The f64 reference checked against scipy's solution (every 60 s) before it is used.
     let scipy = reference();
     for (k, &t) in scipy.t.iter().enumerate() {
         let (_, s64) = ref64[(t / 10.0).round() as usize];
-        assert!((s64 - scipy.storage[k]).abs() < 1e-5 * scipy.storage[k], "t={t}: {s64}");
+        assert!(
+            (s64 - scipy.storage[k]).abs() < 1e-5 * scipy.storage[k],
+            "t={t}: {s64}"
+        );
     }
     let samples: Vec<f32> = (0..=1440).map(|k| inflow(k as f64 * 10.0) as f32).collect();
     let mut out = vec![
@@ -175,9 +206,15 @@ fn f32_routing_matches_f64_rk4_reference() {
     for (res, &(_, s64)) in out.iter().zip(ref64.iter().skip(1)) {
         let h64 = basin.stage_m(s64);
         let q64 = outlet64(h64);
-        assert!((res.storage_m3 as f64 - s64).abs() <= 2e-3 * s64, "{res:?} {s64}");
+        assert!(
+            (res.storage_m3 as f64 - s64).abs() <= 2e-3 * s64,
+            "{res:?} {s64}"
+        );
         if h64 - 100.15 >= 0.01 {
-            assert!((res.outflow_m3s as f64 - q64).abs() <= 2e-3 * q64, "{res:?} {q64}");
+            assert!(
+                (res.outflow_m3s as f64 - q64).abs() <= 2e-3 * q64,
+                "{res:?} {q64}"
+            );
         }
         assert!((res.stage_m as f64 - h64).abs() < 1e-3);
     }

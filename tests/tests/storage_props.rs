@@ -6,7 +6,11 @@ use holdback_core::storage::{BasinGeometry, StageStorage, VolumeMethod};
 use proptest::prelude::*;
 
 fn survey() -> impl Strategy<Value = Vec<(f32, f32)>> {
-    (90.0_f32..110.0, prop::collection::vec((0.01_f32..1.5, 0.0_f32..5000.0), 1..31), 1.0_f32..5000.0)
+    (
+        90.0_f32..110.0,
+        prop::collection::vec((0.01_f32..1.5, 0.0_f32..5000.0), 1..31),
+        1.0_f32..5000.0,
+    )
         .prop_map(|(floor, steps, top_area)| {
             let mut h = floor;
             let mut rows = vec![(h, 0.0)];
@@ -20,7 +24,10 @@ fn survey() -> impl Strategy<Value = Vec<(f32, f32)>> {
 }
 
 fn method() -> impl Strategy<Value = VolumeMethod> {
-    prop_oneof![Just(VolumeMethod::AverageEndArea), Just(VolumeMethod::Frustum)]
+    prop_oneof![
+        Just(VolumeMethod::AverageEndArea),
+        Just(VolumeMethod::Frustum)
+    ]
 }
 
 proptest! {

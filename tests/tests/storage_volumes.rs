@@ -12,7 +12,12 @@ const BASIN: BasinGeometry = BasinGeometry {
 };
 
 fn basin_areas(n: usize) -> Vec<(f32, f32)> {
-    let b = Basin64 { floor_m: 100.0, length_m: 40.0, width_m: 20.0, z: 3.0 };
+    let b = Basin64 {
+        floor_m: 100.0,
+        length_m: 40.0,
+        width_m: 20.0,
+        z: 3.0,
+    };
     (0..n)
         .map(|i| {
             let h = 100.0 + 2.5 * i as f64 / (n - 1) as f64;
@@ -28,7 +33,11 @@ fn basin_areas(n: usize) -> Vec<(f32, f32)> {
 #[test]
 fn basin_geometry_matches_hand_prismoidal_volume() {
     let s = StageStorage::from_basin(BASIN).unwrap();
-    assert!((s.top_storage_m3() - 3312.5).abs() < 0.01, "{}", s.top_storage_m3());
+    assert!(
+        (s.top_storage_m3() - 3312.5).abs() < 0.01,
+        "{}",
+        s.top_storage_m3()
+    );
     assert!((s.area_m2(102.5) - 1925.0).abs() < 0.01);
     assert!((s.area_m2(101.25) - 1306.25).abs() < 0.01);
     assert_eq!(s.floor_m(), 100.0);
@@ -68,9 +77,16 @@ fn truncated_square_pyramid_is_exact_by_frustum() {
 /// table of its areas equals the prismoidal volume: 2/6·(900 + 4·1296 + 1764) = 2616 m³.
 #[test]
 fn square_basin_frustum_equals_prismoidal_at_every_stage() {
-    let g = BasinGeometry { floor_m: 0.0, length_m: 30.0, width_m: 30.0, side_slope_h_per_v: 3.0, depth_m: 2.0 };
+    let g = BasinGeometry {
+        floor_m: 0.0,
+        length_m: 30.0,
+        width_m: 30.0,
+        side_slope_h_per_v: 3.0,
+        depth_m: 2.0,
+    };
     let exact = StageStorage::from_basin(g).unwrap();
-    let fru = StageStorage::from_areas(&[(0.0, 900.0), (2.0, 1764.0)], VolumeMethod::Frustum).unwrap();
+    let fru =
+        StageStorage::from_areas(&[(0.0, 900.0), (2.0, 1764.0)], VolumeMethod::Frustum).unwrap();
     assert!((exact.top_storage_m3() - 2616.0).abs() < 0.01);
     for i in 0..=40 {
         let h = i as f32 * 0.05;
@@ -91,7 +107,10 @@ fn table_errors_shrink_as_the_trapezoid_rule_says() {
         let fru = StageStorage::from_areas(&rows, VolumeMethod::Frustum).unwrap();
         let expected_over = 72.0 * 15.625 / (12.0 * n * n);
         let over = aea.top_storage_m3() - 3312.5;
-        assert!((over - expected_over).abs() < 0.02, "n={n}: {over} vs {expected_over}");
+        assert!(
+            (over - expected_over).abs() < 0.02,
+            "n={n}: {over} vs {expected_over}"
+        );
         assert!((fru.top_storage_m3() - 3312.5).abs() < over, "n={n}");
     }
 }
@@ -121,22 +140,39 @@ fn f32_lookups_match_f64_reference() {
         for i in 0..=400 {
             let h = 99.7 + i as f64 * 0.01;
             let (v, v64) = (s.storage_m3(h as f32) as f64, r.storage_m3(h));
-            assert!((v - v64).abs() <= 2e-3 * v64 + 1e-3, "{m:?} h={h}: {v} vs {v64}");
+            assert!(
+                (v - v64).abs() <= 2e-3 * v64 + 1e-3,
+                "{m:?} h={h}: {v} vs {v64}"
+            );
             let (a, a64) = (s.area_m2(h as f32) as f64, r.area_m2(h));
-            assert!((a - a64).abs() <= 2e-3 * a64 + 1e-3, "{m:?} h={h}: {a} vs {a64}");
+            assert!(
+                (a - a64).abs() <= 2e-3 * a64 + 1e-3,
+                "{m:?} h={h}: {a} vs {a64}"
+            );
             if v64 > 0.0 {
                 let back = s.stage_m(v64 as f32) as f64;
-                assert!((back - r.stage_m(v64)).abs() < 1e-3, "{m:?} v={v64}: {back}");
+                assert!(
+                    (back - r.stage_m(v64)).abs() < 1e-3,
+                    "{m:?} v={v64}: {back}"
+                );
             }
         }
     }
     let b = StageStorage::from_basin(BASIN).unwrap();
-    let b64 = Basin64 { floor_m: 100.0, length_m: 40.0, width_m: 20.0, z: 3.0 };
+    let b64 = Basin64 {
+        floor_m: 100.0,
+        length_m: 40.0,
+        width_m: 20.0,
+        z: 3.0,
+    };
     for i in 0..=300 {
         let h = 99.9 + i as f64 * 0.01;
         let (v, v64) = (b.storage_m3(h as f32) as f64, b64.storage_m3(h.min(102.5)));
         let v64 = v64 + if h > 102.5 { 1925.0 * (h - 102.5) } else { 0.0 };
-        assert!((v - v64).abs() <= 2e-3 * v64 + 1e-3, "basin h={h}: {v} vs {v64}");
+        assert!(
+            (v - v64).abs() <= 2e-3 * v64 + 1e-3,
+            "basin h={h}: {v} vs {v64}"
+        );
         if v64 > 0.0 && h <= 102.5 {
             assert!((b.stage_m(v64 as f32) as f64 - b64.stage_m(v64)).abs() < 1e-3);
         }
@@ -158,8 +194,18 @@ fn volume_table_interpolates_linearly_and_extends_with_last_area() {
 /// Every validation rule gives a typed error naming row, field and value.
 #[test]
 fn validation_errors_are_typed() {
-    let e = StageStorage::from_areas(&[(1.0, 10.0), (2.0, 20.0), (1.5, 30.0)], VolumeMethod::Frustum);
-    assert_eq!(e, Err(StorageError::StageNotIncreasing { row: 2, stage_m: 1.5, previous_stage_m: 2.0 }));
+    let e = StageStorage::from_areas(
+        &[(1.0, 10.0), (2.0, 20.0), (1.5, 30.0)],
+        VolumeMethod::Frustum,
+    );
+    assert_eq!(
+        e,
+        Err(StorageError::StageNotIncreasing {
+            row: 2,
+            stage_m: 1.5,
+            previous_stage_m: 2.0
+        })
+    );
     match StageStorage::from_areas(&[(1.0, 10.0), (f32::NAN, 20.0)], VolumeMethod::Frustum) {
         Err(StorageError::BadValue { row: 1, invalid }) => assert_eq!(invalid.field, "stage_m"),
         other => panic!("{other:?}"),
@@ -172,7 +218,11 @@ fn validation_errors_are_typed() {
     }
     assert_eq!(
         StageStorage::from_volumes(&[(1.0, 0.0), (2.0, 9.0), (3.0, 8.0)]),
-        Err(StorageError::VolumeDecreasing { row: 2, volume_m3: 8.0, previous_volume_m3: 9.0 })
+        Err(StorageError::VolumeDecreasing {
+            row: 2,
+            volume_m3: 8.0,
+            previous_volume_m3: 9.0
+        })
     );
     assert_eq!(
         StageStorage::from_volumes(&[(1.0, 2.0), (2.0, 9.0)]),
@@ -188,7 +238,10 @@ fn validation_errors_are_typed() {
         StageStorage::from_areas(&[], VolumeMethod::Frustum),
         Err(StorageError::TooFewRows { rows: 0, min: 2 })
     );
-    let bad = BasinGeometry { side_slope_h_per_v: -1.0, ..BASIN };
+    let bad = BasinGeometry {
+        side_slope_h_per_v: -1.0,
+        ..BASIN
+    };
     match StageStorage::from_basin(bad) {
         Err(StorageError::Geometry(i)) => assert_eq!(i.field, "side_slope_h_per_v"),
         other => panic!("{other:?}"),
