@@ -32,6 +32,7 @@
 )]
 #![warn(missing_docs)]
 
+pub mod config;
 pub mod event;
 pub mod flow;
 pub mod hydraulics;
