@@ -68,6 +68,8 @@ fn inconsistent(field: &'static str, value: f32, rule: &'static str) -> ConfigEr
 }
 
 /// The pond's IDF relation, in either published form.
+// No heap in the core, so no `Box`: the config holds one of these, ~1 KiB at most.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Clone, PartialEq)]
 pub enum IdfModel {
     /// Formula curves (Talbot, Sherman, power law) per return period.
