@@ -39,6 +39,7 @@ pub mod math;
 pub mod rain;
 pub mod routing;
 pub mod runoff;
+pub mod sizing;
 pub mod storage;
 pub mod validate;
 

@@ -107,7 +107,10 @@ impl fmt::Display for DesignStormError {
                 write!(f, "design storm of {steps} steps: at most {max}")
             }
             Self::BufferTooShort { needed, got } => {
-                write!(f, "hyetograph buffer of {got} steps: the storm needs {needed}")
+                write!(
+                    f,
+                    "hyetograph buffer of {got} steps: the storm needs {needed}"
+                )
             }
         }
     }
@@ -371,7 +374,7 @@ pub fn keifer_chu_intensity_mm_h(
     } else {
         1.0 - peak_ratio
     };
-    if !(side > 0.0) {
+    if side.is_nan() || side <= 0.0 {
         return 0.0;
     }
     let t = math::abs(time_from_peak_min) / side;
