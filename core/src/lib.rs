@@ -40,6 +40,7 @@ pub mod math;
 pub mod rain;
 pub mod routing;
 pub mod runoff;
+pub mod sizing;
 pub mod storage;
 pub mod validate;
 
