@@ -30,7 +30,7 @@ fn core_math_is_within_a_few_ulps_and_micromath_is_not_fit_for_weir_or_orifice_f
 
     // Called as a trait method on purpose: `F32Ext::sqrt(h)` is micromath's approximation,
     // not std's inherent `f32::sqrt` (TOOLCHAIN.md pitfall).
-    let micro_sqrt = max_rel_error(|h| F32Ext::sqrt(h), sqrt_ref);
+    let micro_sqrt = max_rel_error(F32Ext::sqrt, sqrt_ref);
     let micro_p15 = max_rel_error(|h| F32Ext::powf(h, 1.5), p15_ref);
     let micro_p25 = max_rel_error(|h| F32Ext::powf(h, 2.5), p25_ref);
     let core_sqrt = max_rel_error(math::sqrt, sqrt_ref);
