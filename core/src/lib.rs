@@ -34,6 +34,7 @@
 
 pub mod event;
 pub mod flow;
+pub mod forecast;
 pub mod hydraulics;
 pub mod math;
 pub mod rain;
