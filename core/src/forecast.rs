@@ -565,27 +565,171 @@ impl Prediction {
     }
 }
 
-/// The forecast integrator's step: end storage, stage, policy release and released volume.
-struct Stepped {
-    storage_m3: f32,
-    stage_m: f32,
-    release_m3s: f32,
-    released_m3: f32,
+/// Most solver iterations in one forecast step (each one outlet and one storage
+/// evaluation). Newton steps converge in two or three from the previous step's slopes; the
+/// rest is the bracketing safeguard's room.
+pub const MAX_SOLVER_ITERATIONS: u32 = 16;
+
+/// Largest secant stiffness `dt·dO/dS` for which the trapezoidal step is kept (as in
+/// [`routing::step`]).
+const TRAPEZOID_MAX_STIFFNESS: f32 = 2.0;
+
+/// A point on the pond's curves: stage, storage at it, release at it.
+#[derive(Debug, Clone, Copy)]
+struct Point {
+    h: f32,
+    v: f32,
+    q: f32,
 }
 
-fn integrate(
-    pond: &StageStorage,
-    release: &impl StageDischarge,
-    storage_m3: f32,
-    inflow_m3s: f32,
-    dt_s: u32,
-) -> Stepped {
-    let r = routing::step(pond, release, storage_m3, Inflow::steady(inflow_m3s), dt_s);
-    Stepped {
-        storage_m3: r.storage_m3,
-        stage_m: r.stage_m,
-        release_m3s: r.outflow_m3s,
-        released_m3: r.released_m3,
+/// The fast forecast integrator (see [`predict`]): the pond, the release under a policy,
+/// and the running secant slopes of storage (`dV/dh`, the area) and release (`dQ/dh`).
+struct Integrator<'a, R> {
+    pond: &'a StageStorage,
+    release: &'a R,
+    floor: Point,
+    slope_v_m2: f32,
+    slope_q_m2s: f32,
+}
+
+impl<R: StageDischarge> Integrator<'_, R> {
+    fn at(&self, h: f32) -> Point {
+        let q = self.release.discharge_m3s(h);
+        Point {
+            h,
+            v: self.pond.storage_m3(h),
+            q: if q > 0.0 { q } else { 0.0 },
+        }
+    }
+
+    /// The root of `r(h) = V(h) + w·Q(h) − rhs` (strictly increasing in `h`), started at
+    /// `p0` with Newton steps on the carried secant slopes, safeguarded by a bracket
+    /// (regula falsi, then bisection, when a step leaves it). `None` when the root is at or
+    /// below the floor (`r(floor) ≥ 0`).
+    fn solve(&mut self, w: f32, rhs: f32, p0: Point) -> Option<Point> {
+        let r_of = |p: &Point| p.v + w * p.q - rhs;
+        let r0 = r_of(&p0);
+        if r0 == 0.0 {
+            return Some(p0);
+        }
+        let tol_v = 2.0e-6 * (crate::math::abs(rhs) + 1.0);
+        // Bracket: lo has r < 0, hi (if known) r ≥ 0.
+        let (mut lo, mut r_lo, mut hi): (Point, f32, Option<(Point, f32)>) = if r0 < 0.0 {
+            (p0, r0, None)
+        } else {
+            let rf = r_of(&self.floor);
+            if rf >= 0.0 {
+                return None;
+            }
+            (self.floor, rf, Some((p0, r0)))
+        };
+        let (mut cur, mut r_cur) = (p0, r0);
+        for _ in 0..MAX_SOLVER_ITERATIONS {
+            let d = self.slope_v_m2 + w * self.slope_q_m2s;
+            let newton = cur.h - r_cur / d;
+            let cand = match hi {
+                Some((ph, rh)) => {
+                    if newton > lo.h && newton < ph.h {
+                        newton
+                    } else {
+                        let span = rh - r_lo;
+                        let rf = lo.h - r_lo * (ph.h - lo.h) / span;
+                        if rf > lo.h && rf < ph.h {
+                            rf
+                        } else {
+                            0.5 * (lo.h + ph.h)
+                        }
+                    }
+                }
+                None => {
+                    if newton > lo.h && newton.is_finite() {
+                        newton
+                    } else {
+                        // V(stage(rhs)) = rhs, so r ≥ 0 there: a sure upper end.
+                        let top = self.at(self.pond.stage_m(rhs));
+                        let r_top = r_of(&top);
+                        if r_top < 0.0 {
+                            // Rounding left the top short of the root: that close is the
+                            // answer.
+                            return Some(top);
+                        }
+                        hi = Some((top, r_top));
+                        0.5 * (lo.h + top.h)
+                    }
+                }
+            };
+            let p = self.at(cand);
+            let r = r_of(&p);
+            let dh = p.h - cur.h;
+            if dh != 0.0 {
+                let sv = (p.v - cur.v) / dh;
+                let sq = (p.q - cur.q) / dh;
+                if sv.is_finite() && sv > 0.0 {
+                    self.slope_v_m2 = sv;
+                }
+                if sq.is_finite() && sq >= 0.0 {
+                    self.slope_q_m2s = sq;
+                }
+            }
+            if r < 0.0 {
+                lo = p;
+                r_lo = r;
+            } else {
+                hi = Some((p, r));
+            }
+            cur = p;
+            r_cur = r;
+            if crate::math::abs(r) <= tol_v {
+                return Some(p);
+            }
+            if let Some((ph, _)) = hi {
+                if !(0.5 * (lo.h + ph.h) > lo.h && 0.5 * (lo.h + ph.h) < ph.h) {
+                    break;
+                }
+            }
+        }
+        // Out of iterations or an ulp-wide bracket: the bracket end nearer the root.
+        Some(match hi {
+            Some((ph, rh)) if rh < -r_lo => ph,
+            Some(_) => lo,
+            None => cur,
+        })
+    }
+
+    /// One step of `dt` seconds at steady inflow `q_in` from `p0`: trapezoid if its secant
+    /// stiffness is at most 2 and it does not carry a flowing outlet to zero flow, else
+    /// backward Euler (as [`routing::step`]). Returns the end point and the released volume.
+    fn step(&mut self, p0: Point, q_in: f32, dt: f32) -> (Point, f32) {
+        let avail = p0.v + q_in * dt;
+        let half = 0.5 * dt;
+        let trap = self.solve(half, avail - half * p0.q, p0).filter(|p1| {
+            let ds = p1.v - p0.v;
+            let stiff = if ds != 0.0 {
+                dt * (p1.q - p0.q) / ds
+            } else {
+                0.0
+            };
+            stiff.is_finite() && stiff <= TRAPEZOID_MAX_STIFFNESS && !(p0.q > 0.0 && p1.q <= 0.0)
+        });
+        // The released volume is the scheme's own (dt·Q1, or dt·(Q0 + Q1)/2), and the end
+        // storage is what that leaves: continuity holds exactly, the solver tolerance shows
+        // only as a tiny mismatch between the end storage and V(stage).
+        let (p1, released) = match trap {
+            Some(p) => (p, half * (p0.q + p.q)),
+            None => match self.solve(dt, avail, p0) {
+                Some(p) => (p, dt * p.q),
+                None => (self.floor, avail),
+            },
+        };
+        let released = crate::math::clamp(released, 0.0, avail);
+        let v = avail - released;
+        (
+            Point {
+                v: if v > 0.0 { v } else { 0.0 },
+                ..p1
+            },
+            released,
+        )
     }
 }
 
@@ -617,33 +761,62 @@ pub fn predict(
         released_m3: 0.0,
         inflow_m3: outlook.volume_m3(),
     };
-    let mut s = s0;
+    let floor_m = pond.floor_m();
+    let q_floor = release.discharge_m3s(floor_m);
+    let area0 = pond.area_m2(h0);
+    let probe_m = 1.0e-3;
+    let slope_q = (release.discharge_m3s(h0 + probe_m) - q0) / probe_m;
+    let mut integ = Integrator {
+        pond,
+        release: &release,
+        floor: Point {
+            h: floor_m,
+            v: 0.0,
+            q: if q_floor > 0.0 { q_floor } else { 0.0 },
+        },
+        slope_v_m2: if area0 > 0.0 {
+            area0
+        } else {
+            pond.top_area_m2()
+        },
+        slope_q_m2s: if slope_q.is_finite() && slope_q > 0.0 {
+            slope_q
+        } else {
+            0.0
+        },
+    };
+    let mut cur = Point {
+        h: h0,
+        v: s0,
+        q: if q0 > 0.0 { q0 } else { 0.0 },
+    };
+    let dt = secs(dt_s);
     let mut t = 0_u32;
     for &q_in in outlook.inflow_m3s.iter() {
-        let r = integrate(pond, &release, s, q_in, dt_s);
+        let (r, released) = integ.step(cur, q_in, dt);
+        cur = r;
         t = t.saturating_add(dt_s);
-        s = r.storage_m3;
-        p.released_m3 += r.released_m3;
-        if r.stage_m > p.peak_stage_m {
-            p.peak_stage_m = r.stage_m;
-            p.peak_storage_m3 = r.storage_m3;
+        p.released_m3 += released;
+        if r.h > p.peak_stage_m {
+            p.peak_stage_m = r.h;
+            p.peak_storage_m3 = r.v;
             p.peak_at_s = t;
         }
-        if r.release_m3s > p.peak_release_m3s {
-            p.peak_release_m3s = r.release_m3s;
+        if r.q > p.peak_release_m3s {
+            p.peak_release_m3s = r.q;
         }
-        if p.first_over_permit_s.is_none() && r.release_m3s > limits.permit_m3s {
+        if p.first_over_permit_s.is_none() && r.q > limits.permit_m3s {
             p.first_over_permit_s = Some(t);
         }
-        if p.first_over_limit_s.is_none() && r.stage_m > limits.stage_limit_m {
+        if p.first_over_limit_s.is_none() && r.h > limits.stage_limit_m {
             p.first_over_limit_s = Some(t);
         }
-        if r.stage_m >= limits.crest_m {
+        if r.h >= limits.crest_m {
             p.reaches_crest = true;
         }
-        p.end_storage_m3 = r.storage_m3;
-        p.end_stage_m = r.stage_m;
     }
+    p.end_storage_m3 = cur.v;
+    p.end_stage_m = cur.h;
     p
 }
 
