@@ -734,7 +734,7 @@ impl<R: StageDischarge> Integrator<'_, R> {
 }
 
 /// Routes `outlook` through `pond` from `storage_m3` (NaN or negative reads as empty) with the
-/// gate run by `policy`, and judges the result against `limits`.
+/// gate run by `policy`, and judges the result against `limits` (see [`predict_release`]).
 pub fn predict(
     pond: &StageStorage,
     outlet: &Outlet,
@@ -743,10 +743,35 @@ pub fn predict(
     policy: Policy,
     limits: &Limits,
 ) -> Prediction {
-    let release = policy.on(outlet);
+    predict_release(pond, &policy.on(outlet), storage_m3, outlook, limits)
+}
+
+/// Routes `outlook` through `pond` from `storage_m3` (NaN or negative reads as empty) with
+/// any stage–discharge `release`, and judges the result against `limits`.
+///
+/// ## Integrator
+///
+/// The same schemes as [`routing::step`] (trapezoid, falling back to backward Euler where
+/// the trapezoid would ring or cross the invert; inflow constant at the step mean), but each
+/// implicit equation `V(h) + w·Q(h) = rhs` is solved **in stage** by Newton steps on the
+/// secant slopes `dV/dh` and `dQ/dh` carried from the previous evaluations (so the first
+/// step of each forecast step is usually already close), safeguarded by a bracket
+/// (regula falsi, then bisection, when a Newton step leaves it), at most
+/// [`MAX_SOLVER_ITERATIONS`] evaluations, stopping once `|r| ≤ 2·10⁻⁶·(rhs + 1 m³)`. No stage
+/// inverse is needed except when the bracket has no upper end yet and Newton fails.
+/// The released volume is the scheme's own and the end storage is what it leaves, so the
+/// volume balance is exact and storage is never negative.
+pub fn predict_release(
+    pond: &StageStorage,
+    release: &impl StageDischarge,
+    storage_m3: f32,
+    outlook: &Outlook,
+    limits: &Limits,
+) -> Prediction {
     let s0 = sane(storage_m3);
     let h0 = pond.stage_m(s0);
     let q0 = release.discharge_m3s(h0);
+    let q0 = if q0 > 0.0 { q0 } else { 0.0 };
     let dt_s = outlook.step_s;
     let mut p = Prediction {
         peak_stage_m: h0,
@@ -768,7 +793,7 @@ pub fn predict(
     let slope_q = (release.discharge_m3s(h0 + probe_m) - q0) / probe_m;
     let mut integ = Integrator {
         pond,
-        release: &release,
+        release,
         floor: Point {
             h: floor_m,
             v: 0.0,
@@ -788,7 +813,7 @@ pub fn predict(
     let mut cur = Point {
         h: h0,
         v: s0,
-        q: if q0 > 0.0 { q0 } else { 0.0 },
+        q: q0,
     };
     let dt = secs(dt_s);
     let mut t = 0_u32;
