@@ -570,6 +570,9 @@ impl Prediction {
 /// rest is the bracketing safeguard's room.
 pub const MAX_SOLVER_ITERATIONS: u32 = 16;
 
+/// The solver stops once the next Newton correction would move the stage less than this, m.
+pub const STAGE_TOLERANCE_M: f32 = 1.0e-4;
+
 /// Largest secant stiffness `dt·dO/dS` for which the trapezoidal step is kept (as in
 /// [`routing::step`]).
 const TRAPEZOID_MAX_STIFFNESS: f32 = 2.0;
@@ -679,7 +682,8 @@ impl<R: StageDischarge> Integrator<'_, R> {
             }
             cur = p;
             r_cur = r;
-            if crate::math::abs(r) <= tol_v {
+            let d_new = self.slope_v_m2 + w * self.slope_q_m2s;
+            if crate::math::abs(r) <= tol_v || crate::math::abs(r) <= d_new * STAGE_TOLERANCE_M {
                 return Some(p);
             }
             if let Some((ph, _)) = hi {
@@ -757,7 +761,9 @@ pub fn predict(
 /// secant slopes `dV/dh` and `dQ/dh` carried from the previous evaluations (so the first
 /// step of each forecast step is usually already close), safeguarded by a bracket
 /// (regula falsi, then bisection, when a Newton step leaves it), at most
-/// [`MAX_SOLVER_ITERATIONS`] evaluations, stopping once `|r| ≤ 2·10⁻⁶·(rhs + 1 m³)`. No stage
+/// [`MAX_SOLVER_ITERATIONS`] evaluations, stopping once the next Newton correction is below
+/// [`STAGE_TOLERANCE_M`] (or `|r| ≤ 2·10⁻⁶·(rhs + 1 m³)`); usually one or two evaluations of
+/// the outlet per forecast step. No stage
 /// inverse is needed except when the bracket has no upper end yet and Newton fails.
 /// The released volume is the scheme's own and the end storage is what it leaves, so the
 /// volume balance is exact and storage is never negative.
