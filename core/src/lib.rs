@@ -37,6 +37,7 @@ pub mod event;
 pub mod flow;
 pub mod hydraulics;
 pub mod math;
+pub mod packed;
 pub mod rain;
 pub mod routing;
 pub mod runoff;
