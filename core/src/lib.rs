@@ -42,6 +42,7 @@ pub mod packed;
 pub mod rain;
 pub mod routing;
 pub mod runoff;
+pub mod sizing;
 pub mod storage;
 pub mod validate;
 

@@ -6,15 +6,22 @@
 //! - [`idf`]: intensity–duration–frequency relations (Talbot, Sherman, power law, or a table),
 //!   intensity and depth for a duration and return period, and the return period of an
 //!   observed intensity by inverting them.
+//! - [`design`]: design storms (uniform, alternating block, Chicago) from an IDF, written
+//!   into a caller's slice.
 //!
 //! Units: time is integer seconds (`u32`) in the gauge; IDF durations are minutes (`f32`),
 //! intensities mm/h, depths mm, return periods years. Invariants: every constructor validates
 //! once and returns [`RainError`]; after that no method fails or panics, capacity is fixed at
 //! compile time and running out of it is reported (a saturated window), never a crash.
 
+pub mod design;
 pub mod gauge;
 pub mod idf;
 
+pub use design::{
+    DesignStorm, DesignStormError, MAX_STORM_DURATION_S, MAX_STORM_STEPS, Pattern,
+    keifer_chu_intensity_mm_h,
+};
 pub use gauge::{
     GaugeSettings, GaugeStatus, IntervalOutcome, MAX_WINDOWS, RainEvent, RainGauge, Readings,
     TipOutcome, WindowPeak, WindowReading,
