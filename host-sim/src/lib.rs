@@ -6,5 +6,11 @@
 //! (CSV time series, JSON summaries, plots, the sign-off report). The engineering is the
 //! core's; this crate adapts it to files.
 
+pub mod batch;
 pub mod pondfile;
+pub mod rainfile;
+pub mod report;
+pub mod sim;
+pub mod storms;
+pub mod summary;
 pub mod units;

@@ -12,8 +12,8 @@ use std::fmt;
 use holdback_core::config::{ControlSettings, PondConfig};
 use holdback_core::hydraulics::{FixedStructure, Outlet};
 use holdback_core::packed::{
-    BuildError, CatchmentSpec, ControlSpec, FormulaSpec, GateSpec, IdfSpec, OutletSpec,
-    PackError, PondSpec, SensorSpec, SpecPart, StorageSpec, StructureSpec, SubCatchmentSpec,
+    BuildError, CatchmentSpec, ControlSpec, FormulaSpec, GateSpec, IdfSpec, OutletSpec, PackError,
+    PondSpec, SensorSpec, SpecPart, StorageSpec, StructureSpec, SubCatchmentSpec,
 };
 use holdback_core::routing::{self, Inflow};
 use holdback_core::runoff::{FlowPath, Segment, TimeOfConcentration};
@@ -69,8 +69,8 @@ struct File {
     format: u32,
     #[serde(default)]
     name: String,
-    #[serde(default)]
-    units: Option<String>,
+    #[serde(default, rename = "units")]
+    _units: Option<String>,
     storage: StorageFile,
     outlet: OutletFile,
     #[serde(default)]
@@ -200,9 +200,15 @@ impl StructureFile {
                 angle_deg,
                 cd,
             },
-            StructureFile::BroadCrestedWeir { crest_m, width_m, cd } => {
-                StructureSpec::BroadCrestedWeir { crest_m, width_m, cd }
-            }
+            StructureFile::BroadCrestedWeir {
+                crest_m,
+                width_m,
+                cd,
+            } => StructureSpec::BroadCrestedWeir {
+                crest_m,
+                width_m,
+                cd,
+            },
             StructureFile::RiserCircular {
                 crest_m,
                 diameter_m,
@@ -371,7 +377,10 @@ enum SegmentFile {
         manning_n: f32,
     },
     /// A reach whose travel time is the Kirpich time for its length and slope.
-    Kirpich { length_m: f32, slope_m_m: f32 },
+    Kirpich {
+        length_m: f32,
+        slope_m_m: f32,
+    },
 }
 
 #[derive(Debug, Deserialize)]
@@ -548,10 +557,14 @@ fn map_build(part: SpecPart, error: &BuildError) -> Problem {
 
 fn tc_s(i: usize, s: &SubFile) -> Result<u32, Problem> {
     let path = format!("catchment.sub[{i}]");
-    let given = [s.tc_min.is_some(), s.flow_path.is_some(), s.kirpich.is_some()]
-        .iter()
-        .filter(|b| **b)
-        .count();
+    let given = [
+        s.tc_min.is_some(),
+        s.flow_path.is_some(),
+        s.kirpich.is_some(),
+    ]
+    .iter()
+    .filter(|b| **b)
+    .count();
     if given != 1 {
         return Err(problem(
             path,
@@ -573,7 +586,10 @@ fn tc_s(i: usize, s: &SubFile) -> Result<u32, Problem> {
             .map(|t| t.s())
             .map_err(|e| runoff(&p, e));
     }
-    let fp = s.flow_path.as_ref().ok_or_else(|| problem(&path, ": no Tc"))?;
+    let fp = s
+        .flow_path
+        .as_ref()
+        .ok_or_else(|| problem(&path, ": no Tc"))?;
     let mut segs = Vec::new();
     for (j, seg) in fp.segment.iter().enumerate() {
         let p = format!("{path}.flow_path.segment[{j}]");
@@ -685,13 +701,19 @@ fn idf_spec(f: &IdfFile) -> Result<IdfSpec, Problem> {
             for (i, c) in f.curve.iter().enumerate() {
                 let p = format!("idf.curve[{i}]");
                 let form = match (c.form.as_str(), c.c) {
-                    ("talbot", None) => FormulaSpec::Talbot { a: c.a_mm_h, b: c.b },
+                    ("talbot", None) => FormulaSpec::Talbot {
+                        a: c.a_mm_h,
+                        b: c.b,
+                    },
                     ("sherman", Some(cc)) => FormulaSpec::Sherman {
                         a: c.a_mm_h,
                         b: c.b,
                         c: cc,
                     },
-                    ("power-law", None) => FormulaSpec::PowerLaw { a: c.a_mm_h, b: c.b },
+                    ("power-law", None) => FormulaSpec::PowerLaw {
+                        a: c.a_mm_h,
+                        b: c.b,
+                    },
                     ("sherman", None) => return Err(problem(p, ": sherman needs c")),
                     ("talbot" | "power-law", Some(_)) => {
                         return Err(problem(format!("{p}.c"), ": only sherman takes c"));
@@ -903,9 +925,9 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
                     ))
                     .into_iter()
                     .map(|mut p| {
-                        p.path = p
-                            .path
-                            .replacen("outlet.fixed[0]", &format!("existing.fixed[{i}]"), 1);
+                        p.path =
+                            p.path
+                                .replacen("outlet.fixed[0]", &format!("existing.fixed[{i}]"), 1);
                         p
                     })
                     .collect::<Vec<_>>()
@@ -979,9 +1001,10 @@ fn warnings(f: &File, pond: &Pond) -> Vec<String> {
             target as f64 * 4.0 / 3600.0
         )),
     }
-    let has_spillway = cfg.outlet().fixed().iter().any(|s| {
-        matches!(s, FixedStructure::Spillway(_)) && (s.invert_m() - crest).abs() <= 0.01
-    });
+    let has_spillway =
+        cfg.outlet().fixed().iter().any(|s| {
+            matches!(s, FixedStructure::Spillway(_)) && (s.invert_m() - crest).abs() <= 0.01
+        });
     if !has_spillway {
         w.push(format!(
             "levels.crest_m = {crest}: no spillway in outlet.fixed has its crest there; \

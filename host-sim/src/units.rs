@@ -200,9 +200,7 @@ mod tests {
         let r = us_to_si(&mut v).unwrap();
         assert_eq!(r.len(), 3);
         assert!((v["gate"]["width_m"].as_float().unwrap() - 0.6096).abs() < 1e-12);
-        assert!(
-            (v["permit"]["release_m3s"].as_float().unwrap() - 0.283_168_465_92).abs() < 1e-12
-        );
+        assert!((v["permit"]["release_m3s"].as_float().unwrap() - 0.283_168_465_92).abs() < 1e-12);
         let row = &v["s"]["stage_area_m_m2"][0];
         assert!((row[1].as_float().unwrap() - 9.290_304).abs() < 1e-9);
     }
