@@ -89,7 +89,11 @@ pub enum StorageSpec {
 #[allow(missing_docs)] // Each field is the constructor argument of the same name.
 pub enum StructureSpec {
     /// [`CircularOrifice::new`].
-    CircularOrifice { invert_m: f32, diameter_m: f32, cd: f32 },
+    CircularOrifice {
+        invert_m: f32,
+        diameter_m: f32,
+        cd: f32,
+    },
     /// [`RectangularOrifice::new`].
     RectangularOrifice {
         invert_m: f32,
@@ -105,7 +109,11 @@ pub enum StructureSpec {
         end_contractions: u8,
     },
     /// [`VNotchWeir::new`].
-    VNotchWeir { crest_m: f32, angle_deg: f32, cd: f32 },
+    VNotchWeir {
+        crest_m: f32,
+        angle_deg: f32,
+        cd: f32,
+    },
     /// [`BroadCrestedWeir::new`].
     BroadCrestedWeir { crest_m: f32, width_m: f32, cd: f32 },
     /// [`Riser::circular`].
@@ -158,9 +166,11 @@ impl StructureSpec {
                 angle_deg,
                 cd,
             } => VNotchWeir::new(crest_m, angle_deg, cd)?.into(),
-            StructureSpec::BroadCrestedWeir { crest_m, width_m, cd } => {
-                BroadCrestedWeir::new(crest_m, width_m, cd)?.into()
-            }
+            StructureSpec::BroadCrestedWeir {
+                crest_m,
+                width_m,
+                cd,
+            } => BroadCrestedWeir::new(crest_m, width_m, cd)?.into(),
             StructureSpec::RiserCircular {
                 crest_m,
                 diameter_m,
@@ -255,6 +265,8 @@ impl From<FormulaSpec> for IdfFormula {
 }
 
 /// The IDF relation, as formulas per return period or a table.
+// No heap in the core, so the table is inline (~1 KiB), like `IdfModel`.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub enum IdfSpec {
     /// One formula per return period, valid over a duration range.
@@ -523,7 +535,10 @@ impl fmt::Display for PackError {
         match self {
             PackError::TooShort { len } => write!(f, "packed config of {len} bytes: too short"),
             PackError::TooLong { len } => {
-                write!(f, "packed config of {len} bytes: more than {MAX_PACKED_LEN}")
+                write!(
+                    f,
+                    "packed config of {len} bytes: more than {MAX_PACKED_LEN}"
+                )
             }
             PackError::BadMagic => f.write_str("not a packed pond config (bad magic)"),
             PackError::UnsupportedVersion { found } => write!(

@@ -406,15 +406,13 @@ mod tests {
         }
     }
 
-    /// 2000-03-01 is day 11 017 since 1970-01-01 (checked by hand: 30 years, 8 leap days,
-    /// + Jan and Feb 2000 (31 + 29)).
+    /// 2000-03-01T00:00:10Z is 951 868 810 s after the Unix epoch (Python 3
+    /// `datetime(2000, 3, 1, 0, 0, 10, tzinfo=timezone.utc).timestamp()`; by hand: 30 years
+    /// with 7 leap days, then January and February 2000, 31 + 29 days).
     #[test]
     fn iso_dates_count_days_correctly() {
         assert_eq!(parse_iso("1970-01-01 00:00").unwrap(), 0);
-        assert_eq!(
-            parse_iso("2000-03-01T00:00:10Z").unwrap(),
-            (30 * 365 + 8 + 31 + 29) * 86_400 + 10
-        );
+        assert_eq!(parse_iso("2000-03-01T00:00:10Z").unwrap(), 951_868_810);
         assert!(parse_iso("2000-13-01 00:00").is_err());
     }
 
@@ -429,9 +427,12 @@ mod tests {
         assert_eq!(r.bad_rows[0].line, 3);
         assert!(r.bad_rows[0].to_string().contains("\"x\""));
         assert_eq!(r.bad_rows[1].line, 6);
-        assert_eq!(r.gaps.len(), 1);
-        assert_eq!((r.gaps[0].after_line, r.gaps[0].before_line), (4, 5));
-        assert_eq!(r.gaps[0].missing_s, 600);
+        // The bad row leaves a gap of its own (lines 2-4), then 00:10 to 00:25 misses two.
+        assert_eq!(r.gaps.len(), 2);
+        assert_eq!((r.gaps[0].after_line, r.gaps[0].before_line), (2, 4));
+        assert_eq!(r.gaps[0].missing_s, 300);
+        assert_eq!((r.gaps[1].after_line, r.gaps[1].before_line), (4, 5));
+        assert_eq!(r.gaps[1].missing_s, 600);
     }
 
     #[test]
