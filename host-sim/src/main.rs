@@ -575,7 +575,7 @@ fn replay(
     }
     print!("{}", report::summary_table(&summaries));
     if let Some(dir) = out {
-        report::write_all(p, s, &summaries, dir).map_err(|e| bad(format!("{e}")))?;
+        report::write_all(p, s, &summaries, dir).map_err(bad)?;
         eprintln!("holdback: wrote results into {}", dir.display());
     }
     let pass = summaries.first().is_none_or(|(_, sm)| sm.pass);
