@@ -7,6 +7,9 @@
 //! Each step is implicit in the end storage `S1` and is solved by bounded bisection on
 //! storage, over the bracket `[0, S0 + V_in]` (no step can release more than it holds):
 //!
+//! (The solver is bracketing false position with the Illinois modification and a bisection
+//! safeguard, typically under ten outlet evaluations; see `bisect`.)
+//!
 //! 1. **Trapezoidal (storage-indication) first**: `S1 + dt/2·O(S1) = S0 + V_in − dt/2·O(S0)`,
 //!    with `V_in = dt·(I0 + I1)/2`. Second-order accurate and A-stable, but not L-stable: for
 //!    a linear reservoir `O = S/k` its amplification is `(1 − x/2)/(1 + x/2)` with `x = dt/k`,
@@ -44,11 +47,13 @@
 //! answer, but no stability promise.
 
 use crate::flow::StageDischarge;
+use crate::math;
 use crate::storage::StageStorage;
 
-/// Most bisection steps in one solve (f32 has 24 bits of mantissa; 64 halvings of the
-/// bracket exhaust any f32 bracket).
-pub const MAX_ITERATIONS: u32 = 64;
+/// Most residual evaluations in one solve. The safeguard halves the bracket at least once
+/// every three steps, so this allows 32 halvings: more than the 24 bits of an f32 mantissa
+/// needs to pin a root to f32 resolution relative to the bracket.
+pub const MAX_ITERATIONS: u32 = 96;
 
 /// Largest secant stiffness `dt·dO/dS` for which the trapezoidal step is kept.
 const TRAPEZOID_MAX_STIFFNESS: f32 = 2.0;
@@ -122,28 +127,66 @@ fn outflow(pond: &StageStorage, outlet: &impl StageDischarge, s: f32) -> f32 {
     if q > 0.0 { q } else { 0.0 }
 }
 
-/// Solve `r(S) = S + w·O(S) − rhs = 0` on `[0, hi]` by bisection, where `r(0) < 0 ≤ r(hi)`
-/// is assumed by the caller. Returns the end of the final bracket with the smaller |r|.
+/// Solve `r(S) = S + w·O(S) − rhs = 0` on `[0, hi]`, where `r(0) < 0 ≤ r(hi)` is assumed by
+/// the caller. Bracketing false position with the Illinois modification, safeguarded by
+/// bisection: a trial point outside the bracket, or a bracket that has not halved in three
+/// steps, takes the midpoint instead, so the bracket shrinks at least as fast as bisection
+/// every three steps. Stops when |r| is at f32 rounding level, when the bracket cannot be
+/// split in f32, or after [`MAX_ITERATIONS`]. Returns the point with the smallest |r| seen.
 fn bisect(pond: &StageStorage, outlet: &impl StageDischarge, w: f32, rhs: f32, hi: f32) -> f32 {
     let resid = |s: f32| s + w * outflow(pond, outlet, s) - rhs;
     let (mut lo, mut hi) = (0.0_f32, hi);
     let (mut r_lo, mut r_hi) = (resid(lo), resid(hi));
-    for _ in 0..MAX_ITERATIONS {
+    let tol = 0.5 * f32::EPSILON * math::abs(rhs);
+    let (mut best, mut best_r) = if -r_lo < r_hi {
+        (lo, -r_lo)
+    } else {
+        (hi, r_hi)
+    };
+    // Bracket widths of the last three steps, and whether the last step kept `lo` (true) or
+    // `hi` (false): the Illinois bookkeeping.
+    let mut widths = [f32::INFINITY; 3];
+    let mut kept_lo_last: Option<bool> = None;
+    for k in 0..MAX_ITERATIONS {
         let mid = 0.5 * (lo + hi);
-        if !(mid > lo && mid < hi) {
+        if !(mid > lo && mid < hi) || best_r <= tol {
             break;
         }
-        let r = resid(mid);
-        if r < 0.0 {
-            lo = mid;
-            r_lo = r;
+        let width = hi - lo;
+        let slot = (k % 3) as usize;
+        let old = widths.get(slot).copied().unwrap_or(f32::INFINITY);
+        if let Some(wslot) = widths.get_mut(slot) {
+            *wslot = width;
+        }
+        let fp = lo + width * (-r_lo / (r_hi - r_lo));
+        let x = if fp > lo && fp < hi && width <= 0.5 * old {
+            fp
         } else {
-            hi = mid;
+            mid
+        };
+        let r = resid(x);
+        if math::abs(r) < best_r {
+            best = x;
+            best_r = math::abs(r);
+        }
+        if r < 0.0 {
+            lo = x;
+            r_lo = r;
+            // Kept `hi` twice in a row: halve its residual so the next trial moves towards it.
+            if kept_lo_last == Some(false) {
+                r_hi *= 0.5;
+            }
+            kept_lo_last = Some(false);
+        } else {
+            hi = x;
             r_hi = r;
+            if kept_lo_last == Some(true) {
+                r_lo *= 0.5;
+            }
+            kept_lo_last = Some(true);
         }
     }
-    // r_lo < 0 ≤ r_hi (NaN residuals fall to `hi`).
-    if -r_lo < r_hi { lo } else { hi }
+    best
 }
 
 /// One level-pool routing step of `dt_s` seconds from `storage_m3`, with `inflow` over the
