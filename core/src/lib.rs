@@ -35,6 +35,7 @@
 pub mod config;
 pub mod event;
 pub mod flow;
+pub mod forecast;
 pub mod hydraulics;
 pub mod math;
 pub mod rain;
