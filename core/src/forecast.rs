@@ -570,6 +570,9 @@ impl Prediction {
 /// rest is the bracketing safeguard's room.
 pub const MAX_SOLVER_ITERATIONS: u32 = 16;
 
+/// The solver stops once the next Newton correction would move the stage less than this, m.
+pub const STAGE_TOLERANCE_M: f32 = 1.0e-4;
+
 /// Largest secant stiffness `dt·dO/dS` for which the trapezoidal step is kept (as in
 /// [`routing::step`]).
 const TRAPEZOID_MAX_STIFFNESS: f32 = 2.0;
@@ -679,7 +682,8 @@ impl<R: StageDischarge> Integrator<'_, R> {
             }
             cur = p;
             r_cur = r;
-            if crate::math::abs(r) <= tol_v {
+            let d_new = self.slope_v_m2 + w * self.slope_q_m2s;
+            if crate::math::abs(r) <= tol_v || crate::math::abs(r) <= d_new * STAGE_TOLERANCE_M {
                 return Some(p);
             }
             if let Some((ph, _)) = hi {
@@ -734,7 +738,7 @@ impl<R: StageDischarge> Integrator<'_, R> {
 }
 
 /// Routes `outlook` through `pond` from `storage_m3` (NaN or negative reads as empty) with the
-/// gate run by `policy`, and judges the result against `limits`.
+/// gate run by `policy`, and judges the result against `limits` (see [`predict_release`]).
 pub fn predict(
     pond: &StageStorage,
     outlet: &Outlet,
@@ -743,10 +747,37 @@ pub fn predict(
     policy: Policy,
     limits: &Limits,
 ) -> Prediction {
-    let release = policy.on(outlet);
+    predict_release(pond, &policy.on(outlet), storage_m3, outlook, limits)
+}
+
+/// Routes `outlook` through `pond` from `storage_m3` (NaN or negative reads as empty) with
+/// any stage–discharge `release`, and judges the result against `limits`.
+///
+/// ## Integrator
+///
+/// The same schemes as [`routing::step`] (trapezoid, falling back to backward Euler where
+/// the trapezoid would ring or cross the invert; inflow constant at the step mean), but each
+/// implicit equation `V(h) + w·Q(h) = rhs` is solved **in stage** by Newton steps on the
+/// secant slopes `dV/dh` and `dQ/dh` carried from the previous evaluations (so the first
+/// step of each forecast step is usually already close), safeguarded by a bracket
+/// (regula falsi, then bisection, when a Newton step leaves it), at most
+/// [`MAX_SOLVER_ITERATIONS`] evaluations, stopping once the next Newton correction is below
+/// [`STAGE_TOLERANCE_M`] (or `|r| ≤ 2·10⁻⁶·(rhs + 1 m³)`); usually one or two evaluations of
+/// the outlet per forecast step. No stage
+/// inverse is needed except when the bracket has no upper end yet and Newton fails.
+/// The released volume is the scheme's own and the end storage is what it leaves, so the
+/// volume balance is exact and storage is never negative.
+pub fn predict_release(
+    pond: &StageStorage,
+    release: &impl StageDischarge,
+    storage_m3: f32,
+    outlook: &Outlook,
+    limits: &Limits,
+) -> Prediction {
     let s0 = sane(storage_m3);
     let h0 = pond.stage_m(s0);
     let q0 = release.discharge_m3s(h0);
+    let q0 = if q0 > 0.0 { q0 } else { 0.0 };
     let dt_s = outlook.step_s;
     let mut p = Prediction {
         peak_stage_m: h0,
@@ -768,7 +799,7 @@ pub fn predict(
     let slope_q = (release.discharge_m3s(h0 + probe_m) - q0) / probe_m;
     let mut integ = Integrator {
         pond,
-        release: &release,
+        release,
         floor: Point {
             h: floor_m,
             v: 0.0,
@@ -788,7 +819,7 @@ pub fn predict(
     let mut cur = Point {
         h: h0,
         v: s0,
-        q: if q0 > 0.0 { q0 } else { 0.0 },
+        q: q0,
     };
     let dt = secs(dt_s);
     let mut t = 0_u32;

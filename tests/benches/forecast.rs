@@ -1,0 +1,191 @@
+//! Cost of the storage forecast on the host, as exact instruction counts under callgrind
+//! (`scripts/icount-host.sh`) and as a rough wall time (`cargo bench -p holdback-tests
+//! --bench forecast`).
+//!
+//! Scenario (invented): a side-sloped basin, a composite outlet (low-flow orifice, riser,
+//! emergency spillway, sluice gate, fixed tailwater), a catchment with a 30 min Tc at a 60 s
+//! runoff step with 40 min of rain already fallen, persistence of 25 mm/h for an hour, a 3 h
+//! horizon at 180 s (60 steps). Each kernel is `#[inline(never)]` and named `kernel_*`, so
+//! callgrind's `--toggle-collect=*kernel_*` counts exactly one call of it.
+
+use std::hint::black_box;
+use std::time::Instant;
+
+use holdback_core::forecast::{
+    FutureRain, Limits, Outlook, Policy, predict, predict_release, release_to_hold,
+};
+use holdback_core::hydraulics::*;
+use holdback_core::routing::{Inflow, step};
+use holdback_core::runoff::{
+    AreaHa, Catchment, RunoffCoefficient, SubCatchment, TimeAreaInflow, TimeAreaResponse,
+    TimeOfConcentration,
+};
+use holdback_core::storage::{BasinGeometry, StageStorage};
+
+/// Candidates per forecast in the cost target.
+const CANDIDATES: usize = 20;
+
+struct Scene {
+    pond: StageStorage,
+    outlet: Outlet,
+    runoff: TimeAreaInflow,
+    limits: Limits,
+    storage_m3: f32,
+}
+
+fn scene() -> Scene {
+    let pond = StageStorage::from_basin(BasinGeometry {
+        floor_m: 100.0,
+        length_m: 60.0,
+        width_m: 30.0,
+        side_slope_h_per_v: 3.0,
+        depth_m: 3.0,
+    })
+    .unwrap();
+    let orifice = CircularOrifice::new(100.0, 0.15, 0.6).unwrap();
+    let riser = Riser::circular(101.8, 1.2, 0.6, 0.6).unwrap();
+    let spillway = Spillway::new(102.6, 8.0, 3.0, 0.9).unwrap();
+    let gate = SluiceGate::new(100.0, 0.6, 0.6, 0.61, 0.98).unwrap();
+    let outlet = Outlet::new(
+        &[orifice.into(), riser.into(), spillway.into()],
+        Some(gate),
+        Some(100.1),
+    )
+    .unwrap();
+    let sub = SubCatchment::new(
+        RunoffCoefficient::new(0.55).unwrap(),
+        AreaHa::new(12.0).unwrap(),
+        TimeOfConcentration::from_s(1800).unwrap(),
+        120,
+    )
+    .unwrap();
+    let resp = TimeAreaResponse::from_catchment(&Catchment::new(&[sub]).unwrap(), 60).unwrap();
+    let mut runoff = TimeAreaInflow::new(resp);
+    for k in 0..40 {
+        runoff.push_step(0.2 + 0.01 * k as f32);
+    }
+    Scene {
+        pond,
+        outlet,
+        runoff,
+        limits: Limits::new(0.12, 102.4, 102.9).unwrap(),
+        storage_m3: 900.0,
+    }
+}
+
+const FUTURE: FutureRain = FutureRain::Persist {
+    intensity_mm_h: 25.0,
+    for_s: 3600,
+};
+
+fn build(s: &Scene) -> Outlook {
+    Outlook::from_time_area(&s.runoff, &FUTURE, None, 180, 3 * 3600).unwrap()
+}
+
+#[inline(never)]
+fn kernel_outlook(s: &Scene) -> f32 {
+    build(black_box(s)).volume_m3()
+}
+
+#[inline(never)]
+fn kernel_one(s: &Scene) -> f32 {
+    let s = black_box(s);
+    let look = build(s);
+    let p = predict(
+        &s.pond,
+        &s.outlet,
+        s.storage_m3,
+        &look,
+        Policy::Fixed { opening_m: 0.2 },
+        &s.limits,
+    );
+    p.peak_stage_m
+}
+
+#[inline(never)]
+fn kernel_twenty(s: &Scene) -> f32 {
+    let s = black_box(s);
+    let look = build(s);
+    let mut acc = 0.0;
+    for k in 0..CANDIDATES {
+        let a = s.outlet.max_opening_m() * k as f32 / (CANDIDATES - 1) as f32;
+        let p = predict(
+            &s.pond,
+            &s.outlet,
+            s.storage_m3,
+            &look,
+            Policy::Fixed { opening_m: a },
+            &s.limits,
+        );
+        acc += p.peak_stage_m;
+    }
+    acc
+}
+
+#[inline(never)]
+fn kernel_hold(s: &Scene) -> f32 {
+    let s = black_box(s);
+    let look = build(s);
+    release_to_hold(&s.pond, &s.outlet, s.storage_m3, &look, &s.limits).cap_m3s
+}
+
+/// The same 20 candidates routed with the accurate `routing::step` (bisection), for the
+/// speed-up the fast integrator gives.
+#[inline(never)]
+fn kernel_reference_twenty(s: &Scene) -> f32 {
+    let s = black_box(s);
+    let look = build(s);
+    let mut acc = 0.0;
+    for k in 0..CANDIDATES {
+        let a = s.outlet.max_opening_m() * k as f32 / (CANDIDATES - 1) as f32;
+        let o = s.outlet.at(a);
+        let mut st = s.storage_m3;
+        let mut peak = 0.0_f32;
+        for &q in look.inflow_m3s() {
+            let r = step(&s.pond, &o, st, Inflow::steady(q), 180);
+            st = r.storage_m3;
+            peak = peak.max(r.stage_m);
+        }
+        acc += peak;
+    }
+    acc
+}
+
+fn main() {
+    let s = scene();
+    // Under callgrind: one call of each kernel (counts toggled by name).
+    if std::env::var_os("FORECAST_ICOUNT").is_some() {
+        black_box(kernel_outlook(&s));
+        black_box(kernel_one(&s));
+        black_box(kernel_twenty(&s));
+        black_box(kernel_hold(&s));
+        black_box(kernel_reference_twenty(&s));
+        return;
+    }
+    // Agreement of the two integrators on this scene, printed beside the timings.
+    let look = build(&s);
+    let fast = predict_release(&s.pond, &s.outlet.at(0.2), s.storage_m3, &look, &s.limits);
+    println!(
+        "scene: outlook {:.0} m3, opening 0.2 m: peak {:.4} m at {} s",
+        look.volume_m3(),
+        fast.peak_stage_m,
+        fast.peak_at_s
+    );
+    type Kernel = fn(&Scene) -> f32;
+    let kernels: [(&str, Kernel); 5] = [
+        ("outlook", kernel_outlook),
+        ("one candidate", kernel_one),
+        ("20 candidates", kernel_twenty),
+        ("release_to_hold", kernel_hold),
+        ("20 candidates, routing::step", kernel_reference_twenty),
+    ];
+    for (name, f) in kernels {
+        let n = 200;
+        let t = Instant::now();
+        for _ in 0..n {
+            black_box(f(&s));
+        }
+        let us = t.elapsed().as_secs_f64() * 1e6 / n as f64;
+        println!("{name:32} {us:10.1} us per call");
+    }
+}
