@@ -167,9 +167,8 @@ impl StageMonitor {
             self.accept(x, now_s);
             return obs;
         };
-        let allowed = |since_s: u32| {
-            s.max_stage_rate_m_s * now_s.saturating_sub(since_s) as f32 + s.noise_m
-        };
+        let allowed =
+            |since_s: u32| s.max_stage_rate_m_s * now_s.saturating_sub(since_s) as f32 + s.noise_m;
         let jump = crate::math::abs(x - r);
         let candidate = jump > s.spike_m || jump > allowed(self.ref_s);
         if !candidate {
@@ -181,8 +180,8 @@ impl StageMonitor {
             self.accept(x, now_s);
             return obs;
         }
-        let agrees = self.cand_count > 0
-            && crate::math::abs(x - self.cand_m) <= allowed(self.cand_s);
+        let agrees =
+            self.cand_count > 0 && crate::math::abs(x - self.cand_m) <= allowed(self.cand_s);
         if agrees {
             self.cand_count = self.cand_count.saturating_add(1);
         } else {

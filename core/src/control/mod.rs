@@ -13,15 +13,17 @@
 //!
 //! 1. **Never overtop when avoidable.** A forecast ([`crate::forecast`]) at the permit target
 //!    runs every `forecast_every_s` while anything is happening (rain in the inter-event time,
-//!    runoff arriving, stage above the normal band). When it reaches crest − freeboard, or the
+//!    runoff arriving, stage above the normal band). When it reaches crest − freeboard within
+//!    [`SURCHARGE_LEAD_S`] (later crossings wait for fresher forecasts), or the
 //!    measured stage is there, the mode is Surcharge and the release cap is
 //!    [`release_to_hold`]'s (full open when even that does not hold). A release above the
 //!    permit logs `PermitExceedance` with its reason and raises [`Alarms::PERMIT_EXCEEDED`].
 //! 2. **Release ≤ permit × (1 − margin)** otherwise: the opening is the outlet rating's
 //!    inverse ([`Outlet::opening_for`]) at the filtered stage for the target, re-evaluated
-//!    every step; the fixed structures are part of the rating (if they alone pass more than
-//!    the target the gate closes). If the release at the current opening and the (unfiltered
-//!    when higher) stage exceeds the permit, the closing move is made at once.
+//!    every step, at the higher of the filtered and the latest reading carried forward on the
+//!    current rise by [`LEAD_S`]; the fixed structures are part of the rating (if they alone
+//!    pass more than the target the gate closes). If the release at the current goal would use
+//!    more than half the margin, the closing move is made at once.
 //! 3. **Use the storage well.** Capture releases the permit target from the first drop above
 //!    the normal level: the perfect-foresight schedule of the design notes, less the margin.
 //! 4. **Drain in time.** Drawdown releases the permit target, or, with `min_detention_s` set,
@@ -112,6 +114,13 @@ pub const TREND_S: u32 = 60;
 pub const RISE_M: f32 = 0.002;
 /// Within this of the normal level counts as "at normal", m (common practice, no source).
 pub const NORMAL_BAND_M: f32 = 0.02;
+/// Surcharge starts when the forecast at the permit target crosses crest − freeboard within
+/// this time; a crossing further out waits for fresher forecasts (the persistence assumption
+/// overestimates a storm near its peak), s.
+pub const SURCHARGE_LEAD_S: u32 = 900;
+/// The permit-following opening is worked out at the stage expected this far ahead on the
+/// current rise (filter delay, gate travel), s.
+pub const LEAD_S: u32 = 60;
 /// Inflow or release above this share of the permit target means the stage should move (stuck
 /// check).
 pub const EXPECTED_CHANGE_SHARE: f32 = 0.05;
@@ -294,6 +303,7 @@ pub struct Controller {
     trend_s: u32,
     trend_storage_m3: Option<f32>,
     rising: bool,
+    rise_m_s: f32,
     inflow_est_m3s: f32,
     manual: Option<(f32, u32)>,
     alarms_active: Alarms,
@@ -321,7 +331,12 @@ impl Controller {
             act: Actuator::new(cfg.safe().safe_opening_m),
             gauge: RainGauge::new(
                 &cfg.sensors().gauge,
-                &[300, PERSIST_WINDOW_S, 3600, cfg.sensors().gauge.clog_after_s],
+                &[
+                    300,
+                    PERSIST_WINDOW_S,
+                    3600,
+                    cfg.sensors().gauge.clog_after_s,
+                ],
             )
             .ok(),
             runoff: TimeAreaInflow::new(cfg.catchment().clone()),
@@ -336,6 +351,7 @@ impl Controller {
             trend_s: now_s,
             trend_storage_m3: None,
             rising: false,
+            rise_m_s: 0.0,
             inflow_est_m3s: 0.0,
             manual: None,
             alarms_active: Alarms(0),
@@ -490,7 +506,7 @@ impl Controller {
                 Policy::CapRelease { cap_m3s: target },
                 &limits,
             );
-            if p.first_over_limit_s.is_some() {
+            if p.first_over_limit_s.is_some_and(|t| t <= SURCHARGE_LEAD_S) {
                 let h = release_to_hold(pond, outlet, storage_m3, &look, &limits);
                 fc.over_limit = true;
                 fc.cap_m3s = h.cap_m3s;
@@ -662,6 +678,7 @@ impl Controller {
                     Some(s0) => {
                         let area = pond.area_m2(h).max(1.0);
                         self.rising = (s - s0) / area > RISE_M;
+                        self.rise_m_s = sane((s - s0) / area / span);
                         self.inflow_est_m3s = sane((s - s0) / span + q_out);
                     }
                     None => self.rising = false,
@@ -714,8 +731,10 @@ impl Controller {
             self.set_mode(to, reason, now_s);
         }
 
-        // What opening the mode wants.
+        // What opening the mode wants: at the guard stage (the higher of filtered and latest)
+        // carried forward on the current rise by LEAD_S.
         let h = stage_m.unwrap_or(normal_m);
+        let h_lead = guard_m.unwrap_or(h) + self.rise_m_s * LEAD_S as f32;
         let surcharge_opening = || -> (f32, f32) {
             if !self.fc.feasible || cond.stage_over_limit {
                 (max_open, f32::INFINITY)
@@ -744,7 +763,12 @@ impl Controller {
                     };
                     (a.max(safe), cap, Reason::Surcharge, true)
                 } else {
-                    (safe, outlet.discharge_m3s(h, safe), Reason::SafeOpening, true)
+                    (
+                        safe,
+                        outlet.discharge_m3s(h, safe),
+                        Reason::SafeOpening,
+                        true,
+                    )
                 }
             }
             Mode::Standby | Mode::Capture | Mode::Drawdown => {
@@ -756,7 +780,7 @@ impl Controller {
                     } else {
                         (target, false)
                     };
-                    let (a, fit) = opening_for_target(outlet, h, t);
+                    let (a, fit) = opening_for_target(outlet, h_lead, t);
                     let r = match (fit, paced) {
                         (Fit::FixedExceeds, true) => Reason::DetentionHold,
                         (Fit::FixedExceeds, false) => Reason::FixedExceedsTarget,
@@ -769,11 +793,12 @@ impl Controller {
             }
         };
         let wanted_m = crate::math::clamp(wanted_m, 0.0, max_open);
-        // Permit protection: closing when the release at the goal would exceed the permit.
+        // Permit protection: closing at once when the release at the goal would use more
+        // than half of the margin.
         let guard_h = guard_m.unwrap_or(h);
         if !urgent
             && wanted_m < self.act.goal_m()
-            && outlet.discharge_m3s(guard_h, self.act.goal_m()) > permit
+            && outlet.discharge_m3s(h_lead, self.act.goal_m()) > 0.5 * (target + permit)
         {
             urgent = true;
         }
@@ -839,13 +864,21 @@ impl Controller {
         };
         set(gh > limit_m, Alarms::HIGH_STAGE, &mut active_alarms);
         set(gh >= crest_m, Alarms::OVERTOPPING, &mut active_alarms);
-        set(self.fc.over_limit, Alarms::LOW_FREEBOARD, &mut active_alarms);
+        set(
+            self.fc.over_limit,
+            Alarms::LOW_FREEBOARD,
+            &mut active_alarms,
+        );
         set(
             self.fc.drawdown_late && self.mode == Mode::Drawdown,
             Alarms::SLOW_DRAWDOWN,
             &mut active_alarms,
         );
-        set(release_m3s > permit, Alarms::PERMIT_EXCEEDED, &mut active_alarms);
+        set(
+            release_m3s > permit,
+            Alarms::PERMIT_EXCEEDED,
+            &mut active_alarms,
+        );
         set(!trusted, Alarms::STAGE_FAULT, &mut active_alarms);
         set(faults.gate(), Alarms::GATE_FAULT, &mut active_alarms);
         set(faults.rain(), Alarms::RAIN_FAULT, &mut active_alarms);

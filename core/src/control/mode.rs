@@ -153,7 +153,11 @@ pub fn transition(mode: Mode, c: &Conditions) -> Option<(Mode, ModeReason)> {
         ModeReason::GateFault
     };
     let back = |reason: ModeReason| {
-        let to = if faulted { Mode::Failsafe } else { auto_mode(c) };
+        let to = if faulted {
+            Mode::Failsafe
+        } else {
+            auto_mode(c)
+        };
         let reason = if faulted { fault_reason } else { reason };
         (to != mode).then_some((to, reason))
     };

@@ -81,9 +81,8 @@ mod tests {
     /// A prismatic pond drained at a constant capped release takes V / Q (continuity).
     #[test]
     fn drain_time_at_a_constant_release_is_volume_over_rate() {
-        let pond =
-            StageStorage::from_areas(&[(0.0, 1000.0), (3.0, 1000.0)], VolumeMethod::Frustum)
-                .unwrap();
+        let pond = StageStorage::from_areas(&[(0.0, 1000.0), (3.0, 1000.0)], VolumeMethod::Frustum)
+            .unwrap();
         let g = SluiceGate::new(0.0, 2.0, 1.0, 0.61, 0.98).unwrap();
         let o = Outlet::new(&[], Some(g), None).unwrap();
         // Full open at 0.5 m passes far more than 0.01 m³/s, so the cap binds above ~0.
