@@ -230,6 +230,10 @@ pub enum Injection {
     StageFixed(f32),
     /// The stage reading is missing.
     StageMissing,
+    /// The stage reading freezes at its value at `from_s`.
+    StageFrozen,
+    /// The gate position is missing.
+    PositionMissing,
     /// One reading offset by this much at `from_s` only.
     StageSpike(f32),
     /// The reading offset by this much from `from_s` on.
@@ -282,6 +286,7 @@ pub fn run(
     let mut trace = Vec::new();
     let mut t = 0u32;
     let mut stage = normal;
+    let mut frozen: Option<f32> = None;
     while t < end_s {
         // Inputs at time t (state at the end of the previous step).
         let k = (t / dt_r) as usize;
@@ -314,6 +319,10 @@ pub fn run(
                 Injection::None => {}
                 Injection::StageFixed(v) => inputs.stage_m = Some(v),
                 Injection::StageMissing => inputs.stage_m = None,
+                Injection::StageFrozen => {
+                    inputs.stage_m = Some(*frozen.get_or_insert(stage + noise));
+                }
+                Injection::PositionMissing => inputs.gate_position_m = None,
                 Injection::StageSpike(d) if t == from => inputs.stage_m = Some(stage + d),
                 Injection::StageSpike(_) => {}
                 Injection::StageStep(d) => inputs.stage_m = Some(stage + noise + d),
