@@ -174,6 +174,22 @@ code_enum! {
         LimitConflict = 6,
         /// Stored data failed its check.
         Corrupt = 7,
+        /// A reading that does not change at all while a change is expected.
+        Stuck = 8,
+        /// A jump that reverted within a step or two (the reading was discarded).
+        Spike = 9,
+        /// A change faster than the pond can physically make that did not revert.
+        RateOfChange = 10,
+        /// Readings missing several steps in a row.
+        Missing = 11,
+        /// A rain gauge that counts no rain while the pond rises.
+        Clogged = 12,
+        /// A rain gauge tipping faster than plausible rain.
+        Chatter = 13,
+        /// Position feedback disagreeing with the settled command.
+        Disagree = 14,
+        /// The drive itself reported a fault (timeout, stall, overcurrent).
+        DriverFault = 15,
     }
 }
 
@@ -300,6 +316,13 @@ pub enum EventBody {
         mode: ModeCode,
         /// Sensor health.
         health: HealthFlags,
+    },
+    /// An operator command was refused because a value was out of range.
+    CommandRejected {
+        /// Which command (controller-defined code: 0 manual opening, 1 manual duration).
+        command: u8,
+        /// The value refused.
+        value: f32,
     },
 }
 

@@ -33,6 +33,7 @@
 #![warn(missing_docs)]
 
 pub mod config;
+pub mod control;
 pub mod event;
 pub mod flow;
 pub mod forecast;
