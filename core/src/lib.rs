@@ -39,6 +39,7 @@ pub mod flow;
 pub mod forecast;
 pub mod hydraulics;
 pub mod math;
+pub mod packed;
 pub mod rain;
 pub mod routing;
 pub mod runoff;
