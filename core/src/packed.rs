@@ -351,7 +351,8 @@ impl From<ControlSettings> for ControlSpec {
     }
 }
 
-/// Sensor limits, as [`SensorLimits`] with the gauge settings inline.
+/// Sensor limits, as [`SensorLimits`] with the gauge settings inline; `noise_m` is not
+/// carried and builds as [`SensorLimits::DEFAULT_NOISE_M`].
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[allow(missing_docs)] // Field for field [`SensorLimits`] and [`GaugeSettings`].
 pub struct SensorSpec {
@@ -379,6 +380,9 @@ impl From<SensorSpec> for SensorLimits {
             spike_m: s.spike_m,
             stuck_s: s.stuck_s,
             missing_steps: s.missing_steps,
+            // Not carried in pack version 1: the documented default (a new field would need a
+            // new PACK_VERSION and a pond-file key).
+            noise_m: SensorLimits::DEFAULT_NOISE_M,
             position_tolerance_m: s.position_tolerance_m,
             move_timeout_s: s.move_timeout_s,
             gauge: GaugeSettings {
