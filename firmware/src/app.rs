@@ -1,8 +1,10 @@
 //! The main loop, generic over a [`Board`].
 //!
-//! [`App::boot`] opens the event log on the board's log flash, reads the packed pond
-//! configuration ([`holdback_core::packed::unpack`]: length, magic, version, CRC, then every
-//! constructor) and starts the core [`Controller`]. [`App::step`] is one control step:
+//! At boot the board's `main` reads the packed pond configuration with [`load_config`]
+//! ([`holdback_core::packed::unpack`]: length, magic, version, CRC, then every constructor)
+//! and keeps the result alive for the whole run (a `PondConfig` is ~2.4 KiB: it is borrowed,
+//! never copied). [`App::boot`] opens the event log on the board's log flash and starts the
+//! core [`Controller`] on that configuration. [`App::step`] is one control step:
 //!
 //! 1. sample: stage reading, rain tips since the last step, gate position and limits;
 //! 2. step the controller (pure: [`Controller::step`]);
@@ -127,16 +129,22 @@ pub struct StepReport {
     pub outputs: Option<Outputs>,
 }
 
-struct Configured {
-    cfg: PondConfig,
+struct Configured<'c> {
+    cfg: &'c PondConfig,
     ctl: Controller,
 }
 
+/// Reads a packed pond configuration (see the module doc); the caller keeps the result for
+/// [`App::boot`].
+pub fn load_config(blob: &[u8]) -> Result<PondConfig, PackError> {
+    packed::unpack(blob)
+}
+
 /// The firmware's main loop state (see the module doc).
-pub struct App<B: Board> {
+pub struct App<'c, B: Board> {
     board: B,
     log: Option<EventLog<B::LogFlash>>,
-    run: Option<Configured>,
+    run: Option<Configured<'c>>,
     config_error: Option<PackError>,
     next_step_s: u32,
     next_sample_s: u32,
@@ -151,9 +159,9 @@ fn config_fault_kind(e: &PackError) -> FaultKind {
     }
 }
 
-impl<B: Board> App<B> {
-    /// Boots on `board` with the packed configuration `blob` (see the module doc).
-    pub fn boot(mut board: B, blob: &[u8], opts: AppOptions) -> Self {
+impl<'c, B: Board> App<'c, B> {
+    /// Boots on `board` with the configuration [`load_config`] gave (see the module doc).
+    pub fn boot(mut board: B, config: Result<&'c PondConfig, PackError>, opts: AppOptions) -> Self {
         let now = board.now_s();
         let log = board
             .take_log_flash()
@@ -171,9 +179,9 @@ impl<B: Board> App<B> {
         if app.log.is_none() {
             app.log_failures = app.log_failures.saturating_add(1);
         }
-        match packed::unpack(blob) {
+        match config {
             Ok(cfg) => {
-                let ctl = Controller::new(&cfg, now);
+                let ctl = Controller::new(cfg, now);
                 app.board.command_gate(cfg.safe().safe_opening_m);
                 app.run = Some(Configured { cfg, ctl });
             }
@@ -198,8 +206,8 @@ impl<B: Board> App<B> {
     }
 
     /// The configuration in use.
-    pub fn config(&self) -> Option<&PondConfig> {
-        self.run.as_ref().map(|r| &r.cfg)
+    pub fn config(&self) -> Option<&'c PondConfig> {
+        self.run.as_ref().map(|r| r.cfg)
     }
 
     /// The board.
@@ -261,7 +269,7 @@ impl<B: Board> App<B> {
                     gate_fault: gate.fault,
                     command,
                 };
-                let out = run.ctl.step(&run.cfg, &inputs, now);
+                let out = run.ctl.step(run.cfg, &inputs, now);
                 self.board.command_gate(out.opening_cmd_m);
                 let step_s = run.cfg.control().step_s;
                 self.next_step_s = now.saturating_add(step_s);

@@ -252,7 +252,7 @@ impl TraceRecord {
 /// k + 1, so the storm's record k falls between decisions k and k + 1), handing each trace
 /// record to `sink`; stops early with the sink's error.
 pub fn run_closed_loop<B: Board, E>(
-    app: &mut App<B>,
+    app: &mut App<'_, B>,
     steps: u32,
     mut sink: impl FnMut(&StepReport) -> Result<(), E>,
 ) -> Result<(), E> {

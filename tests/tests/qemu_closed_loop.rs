@@ -22,7 +22,7 @@ use holdback_core::config::PondConfig;
 use holdback_core::event::{EventBody, FaultKind, FaultSource, ModeCode};
 use holdback_core::packed::{self, MAX_PACKED_LEN};
 use holdback_core::rain::design::{DesignStorm, MAX_STORM_STEPS, Pattern};
-use holdback_firmware::app::CONFIG_INVALID;
+use holdback_firmware::app::{CONFIG_INVALID, load_config};
 use holdback_firmware::eventlog::ram_flash::RamFlash;
 use holdback_firmware::virtual_board::{
     SliceRain, TraceRecord, VIRTUAL_FALLBACK_SAFE_OPENING_M, VirtualBoard, run_closed_loop,
@@ -72,9 +72,15 @@ struct HostRun {
 
 /// The host replay: the same `App` + `VirtualBoard` + `run_closed_loop` as the board image.
 fn host_run(pond: &PondConfig, blob: &[u8], rain: &[f32], steps: u32) -> HostRun {
-    let board =
-        VirtualBoard::new(pond, SliceRain(rain.iter()), LogFlash::new(false), 0..2048).unwrap();
-    let mut app = App::boot(board, blob, AppOptions::default());
+    let mut flash = LogFlash::new(false);
+    let board = VirtualBoard::new(pond, SliceRain(rain.iter()), &mut flash, 0..2048).unwrap();
+    // The controller's config is the device's own, unpacked from the blob.
+    let config = load_config(blob);
+    let mut app = App::boot(
+        board,
+        config.as_ref().map_err(|e| *e),
+        AppOptions::default(),
+    );
     let mut trace = Vec::new();
     run_closed_loop(&mut app, steps, |r| {
         trace.push(TraceRecord::of(r));
@@ -177,9 +183,15 @@ fn corrupted_blob_holds_the_fallback_opening_with_an_alarm() {
         Err(packed::PackError::BadCrc { .. })
     ));
     let rain = storm(&pond);
-    let board =
-        VirtualBoard::new(&pond, SliceRain(rain.iter()), LogFlash::new(false), 0..2048).unwrap();
-    let mut app = App::boot(board, &blob, AppOptions::default());
+    let mut flash = LogFlash::new(false);
+    let board = VirtualBoard::new(&pond, SliceRain(rain.iter()), &mut flash, 0..2048).unwrap();
+    // The controller's config is the device's own, unpacked from the blob.
+    let config = load_config(&blob);
+    let mut app = App::boot(
+        board,
+        config.as_ref().map_err(|e| *e),
+        AppOptions::default(),
+    );
     assert!(app.config_error().is_some());
     let mut reports = Vec::new();
     run_closed_loop(&mut app, 60, |r| {

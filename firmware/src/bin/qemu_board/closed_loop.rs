@@ -14,7 +14,9 @@
 
 use core::ffi::CStr;
 
-use holdback_core::packed::{self, MAX_PACKED_LEN};
+use holdback_core::config::PondConfig;
+use holdback_core::packed::MAX_PACKED_LEN;
+use holdback_firmware::app::load_config;
 use holdback_firmware::eventlog::ram_flash::RamFlash;
 use holdback_firmware::virtual_board::{RainSource, TraceRecord, VirtualBoard, run_closed_loop};
 use holdback_firmware::{App, AppOptions};
@@ -73,12 +75,17 @@ fn open(path: &str) -> Result<File, Exit> {
     File::open(p).map_err(|_| Exit::Input)
 }
 
-/// Runs the command (see the module doc).
-pub fn run(blob_path: &str, storm_path: &str, trace_path: &str) -> Result<(), Exit> {
+/// Reads and checks the blob (its buffer and the unpacking stack are gone afterwards).
+#[inline(never)]
+fn load(blob_path: &str) -> Result<PondConfig, Exit> {
     let mut blob = [0_u8; MAX_PACKED_LEN];
     let n = fill(&mut open(blob_path)?, &mut blob)?;
-    let blob = blob.get(..n).ok_or(Exit::Input)?;
-    let pond = packed::unpack(blob).map_err(|_| Exit::Input)?;
+    load_config(blob.get(..n).ok_or(Exit::Input)?).map_err(|_| Exit::Input)
+}
+
+/// Runs the command (see the module doc).
+pub fn run(blob_path: &str, storm_path: &str, trace_path: &str) -> Result<(), Exit> {
+    let pond = load(blob_path)?;
 
     let mut storm = open(storm_path)?;
     let mut head = [0_u8; 4];
@@ -99,10 +106,11 @@ pub fn run(blob_path: &str, storm_path: &str, trace_path: &str) -> Result<(), Ex
     let out_path = c_path(trace_path, &mut pbuf).ok_or(Exit::Usage)?;
     let mut out = File::create(out_path).map_err(|_| Exit::Output)?;
 
-    let flash = LogFlash::new(false);
+    let mut flash = LogFlash::new(false);
     let range = 0..u32::try_from(LOG_FLASH_BYTES).unwrap_or(0);
-    let board = VirtualBoard::new(&pond, rain, flash, range).map_err(|_| Exit::Input)?;
-    let mut app = App::boot(board, blob, AppOptions::default());
+    // The board borrows the flash, so moving the board around never copies its 4 KiB.
+    let board = VirtualBoard::new(&pond, rain, &mut flash, range).map_err(|_| Exit::Input)?;
+    let mut app = App::boot(board, Ok(&pond), AppOptions::default());
 
     const BATCH: usize = 32;
     let mut buf = [0_u8; BATCH * TraceRecord::BYTES];
