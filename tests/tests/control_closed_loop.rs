@@ -4,6 +4,7 @@
 //!   = min(permit, full-open capacity) from the first drop gives the lowest peak storage of any
 //!   permit-respecting policy; computed with `forecast::step_capped` over the whole storm;
 //! - continuity (the plant conserves volume: `routing::step`).
+//!
 //! Storms are built from each pond's IDF as uniform blocks and symmetric triangles.
 
 use holdback_core::config::PondConfig;

@@ -37,8 +37,7 @@ fn raised_at(
 ) -> Option<usize> {
     d.outputs.iter().enumerate().skip(from).find_map(|(i, o)| {
         o.events
-            .iter()
-            .any(|e| *e == EventBody::FaultRaised { source: src, kind })
+            .contains(&EventBody::FaultRaised { source: src, kind })
             .then_some(i)
     })
 }
@@ -220,6 +219,7 @@ fn gate_position_disagree_within_move_timeout_of_settling() {
         .rev()
         .find(|&i| i == k0 || d.outputs[i].opening_cmd_m != d.outputs[i - 1].opening_cmd_m)
         .unwrap();
-    assert!(k - settled + 1 <= bound, "{} > {bound}", k - settled + 1);
+    let steps = k - settled + 1;
+    assert!(steps <= bound, "{steps} > {bound}");
     assert_eq!(d.outputs[k].mode, Mode::Failsafe);
 }

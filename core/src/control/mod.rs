@@ -551,7 +551,10 @@ impl Controller {
         if left == 0 {
             return (target, false);
         }
-        let above = sane(storage_m3 - cfg.storage().storage_m3(cfg.levels().normal_m));
+        let band_m3 = cfg
+            .storage()
+            .storage_m3(cfg.levels().normal_m + NORMAL_BAND_M);
+        let above = sane(storage_m3 - band_m3);
         let pace = above / left as f32;
         if pace < target {
             (pace, true)
