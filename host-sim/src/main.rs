@@ -199,8 +199,8 @@ struct SimArgs {
     /// A fault: TARGET:KIND@START[-END] (stage|rain|gate : stuck|dropout|stall|drift=R|offset=B), s.
     #[arg(long)]
     fault: Vec<String>,
-    /// A TOML file of faults ([[fault]] at_s, until_s, target, kind, per_h | by) and
-    /// [models] settings.
+    /// A TOML file of faults (`[[fault]]`: at_s, until_s, target, kind, per_h or by) and
+    /// `[models]` settings.
     #[arg(long)]
     faults_file: Option<PathBuf>,
     /// Longest simulated time after the rain ends, h.
@@ -575,7 +575,7 @@ fn replay(
     }
     print!("{}", report::summary_table(&summaries));
     if let Some(dir) = out {
-        report::write_all(p, s, &summaries, dir).map_err(|e| bad(format!("{e}")))?;
+        report::write_all(p, s, &summaries, dir).map_err(bad)?;
         eprintln!("holdback: wrote results into {}", dir.display());
     }
     let pass = summaries.first().is_none_or(|(_, sm)| sm.pass);

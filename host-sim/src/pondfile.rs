@@ -518,9 +518,7 @@ fn invalid(prefix: &str, e: &Invalid) -> Problem {
         "runoff_coefficient" => "c",
         other => other,
     };
-    let path = if prefix.is_empty() {
-        field.to_string()
-    } else if field.contains('.') {
+    let path = if prefix.is_empty() || field.contains('.') {
         field.to_string()
     } else {
         format!("{prefix}.{field}")

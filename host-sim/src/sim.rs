@@ -612,7 +612,7 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         {
             r.drawdown_s = Some(t64 - r.rain_end_s);
         }
-        if t % record == 0 {
+        if t.is_multiple_of(record) {
             r.rows.push(Row {
                 t_s: t,
                 rain_mm: rain_since_record as f32,
