@@ -54,6 +54,14 @@ use crate::runoff::time_area::MAX_TIME_AREA_STEPS;
 use crate::storage::StageStorage;
 use crate::validate::{self, Invalid};
 
+mod fast;
+
+pub use fast::{
+    CAPACITY_TOLERANCE_REL, FixedFlowTable, Forecaster, HOLD_CAP_TOLERANCE_REL,
+    PEAK_STAGE_TOLERANCE_M, PEAK_STAGE_TOLERANCE_REL, RELEASE_TOLERANCE_REL, TABLE_POINTS,
+    TabulatedRelease,
+};
+
 /// Most steps an [`Outlook`] holds (a 3 h horizon at 180 s is 60 steps).
 pub const MAX_OUTLOOK_STEPS: usize = 64;
 
@@ -215,8 +223,10 @@ impl Outlook {
     /// multiple of the runoff step; each forecast step's inflow is the mean of the runoff
     /// steps it covers. `idf` is needed only for [`FutureRain::DesignStorm`].
     ///
-    /// Cost: one dot product over the time–area ordinates per runoff step of the horizon for
-    /// the runoff on its way, and one more for the assumed rain (none when [`FutureRain::Dry`]).
+    /// Cost: one dot product over the time–area ordinates per runoff step for the runoff on
+    /// its way (only while it is still arriving) and one more for the assumed rain (only
+    /// while rain assumed within the last ordinate span is still arriving; none when
+    /// [`FutureRain::Dry`]).
     pub fn from_time_area(
         runoff: &TimeAreaInflow,
         future: &FutureRain,
@@ -249,11 +259,19 @@ impl Outlook {
         let mut v = heapless::Vec::new();
         let mut j = 0_usize;
         let mut total_mm = 0.0_f32;
+        // The last runoff step with assumed rain (0: none yet). Once `j` is an ordinate span
+        // past it (and past the rain already fallen), every product of a convolution is an
+        // exact 0, so it is skipped: the same bits, less work.
+        let mut last_wet = 0_usize;
         for _ in 0..steps {
             let mut sum = 0.0_f32;
             for _ in 0..per {
                 j = j.saturating_add(1);
-                let past = runoff.projected_inflow_m3s(j, 0.0);
+                let past = if j < ords.len() {
+                    runoff.projected_inflow_m3s(j, 0.0)
+                } else {
+                    0.0
+                };
                 let mut fut = 0.0_f32;
                 if let Some(src) = future_rain.as_mut() {
                     let r = src.next_mm();
@@ -261,9 +279,14 @@ impl Outlook {
                     if let Some(slot) = ring.get_mut(j % MAX_TIME_AREA_STEPS) {
                         *slot = r;
                     }
-                    for (k, a) in ords.iter().enumerate().take(j) {
-                        let idx = j.wrapping_sub(k) % MAX_TIME_AREA_STEPS;
-                        fut += a * ring.get(idx).copied().unwrap_or(0.0);
+                    if r != 0.0 {
+                        last_wet = j;
+                    }
+                    if last_wet > 0 && j.saturating_sub(last_wet) < ords.len() {
+                        for (k, a) in ords.iter().enumerate().take(j) {
+                            let idx = j.wrapping_sub(k) % MAX_TIME_AREA_STEPS;
+                            fut += a * ring.get(idx).copied().unwrap_or(0.0);
+                        }
                     }
                 }
                 sum += past + fut * scale;
@@ -888,15 +911,20 @@ pub fn release_to_hold(
     outlook: &Outlook,
     limits: &Limits,
 ) -> Hold {
+    hold_search(outlet.max_opening_m(), limits, |policy| {
+        predict(pond, outlet, storage_m3, outlook, policy, limits)
+    })
+}
+
+/// The bisection of [`release_to_hold`] with any predictor of a policy (the exact one or a
+/// [`Forecaster`]'s); `max_opening_m` is the full-open gate.
+fn hold_search(
+    max_opening_m: f32,
+    limits: &Limits,
+    predict_with: impl Fn(Policy) -> Prediction,
+) -> Hold {
     let permit = cap_of(limits.permit_m3s);
-    let at_permit = predict(
-        pond,
-        outlet,
-        storage_m3,
-        outlook,
-        Policy::CapRelease { cap_m3s: permit },
-        limits,
-    );
+    let at_permit = predict_with(Policy::CapRelease { cap_m3s: permit });
     if at_permit.holds(limits) {
         return Hold {
             cap_m3s: permit,
@@ -904,16 +932,9 @@ pub fn release_to_hold(
             feasible: true,
         };
     }
-    let open = predict(
-        pond,
-        outlet,
-        storage_m3,
-        outlook,
-        Policy::Fixed {
-            opening_m: outlet.max_opening_m(),
-        },
-        limits,
-    );
+    let open = predict_with(Policy::Fixed {
+        opening_m: max_opening_m,
+    });
     if !open.holds(limits) || open.peak_release_m3s <= permit {
         return Hold {
             cap_m3s: open.peak_release_m3s.max(permit),
@@ -929,14 +950,7 @@ pub fn release_to_hold(
             break;
         }
         let mid = 0.5 * (lo + hi);
-        let p = predict(
-            pond,
-            outlet,
-            storage_m3,
-            outlook,
-            Policy::CapRelease { cap_m3s: mid },
-            limits,
-        );
+        let p = predict_with(Policy::CapRelease { cap_m3s: mid });
         if p.holds(limits) {
             hi = mid;
             best = p;
