@@ -45,9 +45,9 @@ use core::hint::black_box;
 
 use holdback_core::math;
 
+use forecast_bench::Path;
 use semihosting::fs::File;
 use semihosting::io::{Read, Write};
-use forecast_bench::Path;
 use step::Step;
 
 /// Stages per bench pass.
