@@ -15,7 +15,8 @@ for l in sys.stdin:
         print(m["executable"])')
 out=$(mktemp -d)
 printf '%-28s %14s\n' kernel instructions
-for k in kernel_outlook kernel_one kernel_twenty kernel_hold kernel_reference_twenty; do
+for k in kernel_outlook kernel_one kernel_twenty kernel_hold kernel_reference_twenty \
+    kernel_fast_one kernel_fast_twenty kernel_fast_twenty_kept kernel_fast_hold; do
     FORECAST_ICOUNT=1 valgrind --tool=callgrind --callgrind-out-file="$out/$k.out" \
         --toggle-collect="*forecast::$k" "$bin" >/dev/null 2>"$out/$k.log"
     n=$(awk '/^summary:/{print $2}' "$out/$k.out")

@@ -16,6 +16,11 @@
 //!   the end state and when the permit and the stage limit are first exceeded.
 //! - [`release_to_hold`]: the smallest cap ≥ the permit for which the predicted peak stays at
 //!   or below the stage limit (bisection on the cap).
+//! - [`Forecaster`]: the pond and outlet with the fixed structures tabulated once
+//!   ([`FixedFlowTable`]); its [`Forecaster::predict`] and [`Forecaster::release_to_hold`]
+//!   give the results of [`predict`] and [`release_to_hold`] within stated tolerances at a
+//!   fraction of the cost (see the `fast` submodule doc).
+//! - [`predict_release_traced`]: [`predict_release`] reporting every step ([`ForecastStep`]).
 //! - [`step_capped`]: one accurate routing step ([`crate::routing::step`]) under a release
 //!   cap, for the simulator's perfect-foresight bound.
 //!
@@ -36,23 +41,51 @@
 //!
 //! ## Cost (measured, scene of `tests/benches/forecast.rs`: 3 h at 180 s, composite outlet)
 //!
-//! Exact instruction counts, outlook build included: Cortex-M4F guest under QEMU
-//! (`scripts/qemu-icount.sh count ELF bench forecast20 N`, count(2N) − count(N)) 251 547 for
-//! one candidate and 3 129 644 for 20 (about 150 k per candidate, 100 k for the outlook);
-//! x86-64 host under callgrind (`scripts/icount-host.sh`) 125 588 and 1 100 337. Most of it is
-//! the outlet's fixed structures (partly-full orifice `acos`/`sin`, riser, spillway), evaluated
-//! one to two times per step per candidate.
+//! Exact instruction counts of one whole forecast, outlook build included. Guest: Cortex-M4F
+//! under QEMU, `scripts/qemu-icount.sh count ELF bench KERNEL N`, count(2N) − count(N) over N
+//! (identical run to run). Host: x86-64 under callgrind, `scripts/icount-host.sh`.
+//!
+//! | forecast | guest | host |
+//! |---|---|---|
+//! | outlook alone | ≈ 37 k | 37 202 |
+//! | exact [`predict`], 1 candidate (`exact1`) | 204 309 | 90 671 |
+//! | exact [`predict`], 20 candidates (`exact20`) | 3 139 881 | 1 065 420 |
+//! | [`Forecaster`] built per forecast, 1 candidate (`forecast1`) | 219 731 | 104 772 |
+//! | [`Forecaster`] built per forecast, 20 candidates (`forecast20`) | **904 785** | 744 383 |
+//! | [`Forecaster`] kept, 20 candidates (`forecast20kept`) | 746 338 | 694 869 |
+//!
+//! Before the table (exact path and the outlook's full convolutions), `forecast20` was
+//! 3 129 644 guest and 1 100 337 host instructions, `forecast1` 251 547 and 125 588. On the
+//! guest an exact candidate costs about 150 k instructions, nearly all of it the fixed
+//! structures (the partly-full orifice's libm `acosf`/`sinf`, which compute in f64 and so in
+//! software on the M4F); a tabulated one about 36 k (60 steps, about 1.3 release evaluations
+//! each); the table about 160 k (63 exact evaluations). The table pays for itself from two
+//! candidates; for a single [`predict`] the exact path is cheaper.
+//!
+//! Budget: at 64 MHz a minute holds 3.84 G cycles; one 20-candidate forecast a minute needs
+//! 0.905 M instructions, about 1.4 M cycles at an assumed 1.5 cycles an instruction (from
+//! memory; QEMU does not model the DWT cycle counter, so cycles are not measured): about
+//! 21 ms, 0.04 % of the CPU. The target (20 candidates over 3 h under 1 M guest
+//! instructions) is met with the table built per forecast, with 10 % to spare.
 
 use core::fmt;
 
 use crate::flow::StageDischarge;
 use crate::hydraulics::Outlet;
 use crate::rain::Idf;
-use crate::routing::{self, Inflow, StepResult};
+use crate::routing::{self, Inflow, Scheme, StepResult};
 use crate::runoff::TimeAreaInflow;
 use crate::runoff::time_area::MAX_TIME_AREA_STEPS;
 use crate::storage::StageStorage;
 use crate::validate::{self, Invalid};
+
+mod fast;
+
+pub use fast::{
+    CAPACITY_TOLERANCE_REL, FLOW_FLOOR_M3S, FixedFlowTable, Forecaster, HOLD_CAP_TOLERANCE_REL,
+    PEAK_STAGE_TOLERANCE_M, PEAK_STAGE_TOLERANCE_REL, RELEASE_TOLERANCE_IN_PLAY_REL,
+    RELEASE_TOLERANCE_REL, TABLE_POINTS, TabulatedRelease,
+};
 
 /// Most steps an [`Outlook`] holds (a 3 h horizon at 180 s is 60 steps).
 pub const MAX_OUTLOOK_STEPS: usize = 64;
@@ -215,8 +248,10 @@ impl Outlook {
     /// multiple of the runoff step; each forecast step's inflow is the mean of the runoff
     /// steps it covers. `idf` is needed only for [`FutureRain::DesignStorm`].
     ///
-    /// Cost: one dot product over the time–area ordinates per runoff step of the horizon for
-    /// the runoff on its way, and one more for the assumed rain (none when [`FutureRain::Dry`]).
+    /// Cost: one dot product over the time–area ordinates per runoff step for the runoff on
+    /// its way (only while it is still arriving) and one more for the assumed rain (only
+    /// while rain assumed within the last ordinate span is still arriving; none when
+    /// [`FutureRain::Dry`]).
     pub fn from_time_area(
         runoff: &TimeAreaInflow,
         future: &FutureRain,
@@ -249,11 +284,19 @@ impl Outlook {
         let mut v = heapless::Vec::new();
         let mut j = 0_usize;
         let mut total_mm = 0.0_f32;
+        // The last runoff step with assumed rain (0: none yet). Once `j` is an ordinate span
+        // past it (and past the rain already fallen), every product of a convolution is an
+        // exact 0, so it is skipped: the same bits, less work.
+        let mut last_wet = 0_usize;
         for _ in 0..steps {
             let mut sum = 0.0_f32;
             for _ in 0..per {
                 j = j.saturating_add(1);
-                let past = runoff.projected_inflow_m3s(j, 0.0);
+                let past = if j < ords.len() {
+                    runoff.projected_inflow_m3s(j, 0.0)
+                } else {
+                    0.0
+                };
                 let mut fut = 0.0_f32;
                 if let Some(src) = future_rain.as_mut() {
                     let r = src.next_mm();
@@ -261,9 +304,14 @@ impl Outlook {
                     if let Some(slot) = ring.get_mut(j % MAX_TIME_AREA_STEPS) {
                         *slot = r;
                     }
-                    for (k, a) in ords.iter().enumerate().take(j) {
-                        let idx = j.wrapping_sub(k) % MAX_TIME_AREA_STEPS;
-                        fut += a * ring.get(idx).copied().unwrap_or(0.0);
+                    if r != 0.0 {
+                        last_wet = j;
+                    }
+                    if last_wet > 0 && j.saturating_sub(last_wet) < ords.len() {
+                        for (k, a) in ords.iter().enumerate().take(j) {
+                            let idx = j.wrapping_sub(k) % MAX_TIME_AREA_STEPS;
+                            fut += a * ring.get(idx).copied().unwrap_or(0.0);
+                        }
                     }
                 }
                 sum += past + fut * scale;
@@ -713,9 +761,10 @@ impl<R: StageDischarge> Integrator<'_, R> {
     /// One step of `dt` seconds at steady inflow `q_in` from `p0`: trapezoid if its secant
     /// stiffness is at most 2 and it does not carry a flowing outlet to zero flow, else
     /// backward Euler (as [`routing::step`]). Returns the end point and the released volume.
-    fn step(&mut self, p0: Point, q_in: f32, dt: f32) -> (Point, f32) {
+    fn step(&mut self, p0: Point, q_in: f32, dt: f32) -> (Point, f32, Scheme, f32) {
         let avail = p0.v + q_in * dt;
         let half = 0.5 * dt;
+        let mut stiffness = f32::NAN;
         let trap = self.solve(half, avail - half * p0.q, p0).filter(|p1| {
             let ds = p1.v - p0.v;
             let stiff = if ds != 0.0 {
@@ -723,16 +772,17 @@ impl<R: StageDischarge> Integrator<'_, R> {
             } else {
                 0.0
             };
+            stiffness = stiff;
             stiff.is_finite() && stiff <= TRAPEZOID_MAX_STIFFNESS && !(p0.q > 0.0 && p1.q <= 0.0)
         });
         // The released volume is the scheme's own (dt·Q1, or dt·(Q0 + Q1)/2), and the end
         // storage is what that leaves: continuity holds exactly, the solver tolerance shows
         // only as a tiny mismatch between the end storage and V(stage).
-        let (p1, released) = match trap {
-            Some(p) => (p, half * (p0.q + p.q)),
+        let (p1, released, scheme) = match trap {
+            Some(p) => (p, half * (p0.q + p.q), Scheme::Trapezoid),
             None => match self.solve(dt, avail, p0) {
-                Some(p) => (p, dt * p.q),
-                None => (self.floor, avail),
+                Some(p) => (p, dt * p.q, Scheme::BackwardEuler),
+                None => (self.floor, avail, Scheme::Emptied),
             },
         };
         let released = crate::math::clamp(released, 0.0, avail);
@@ -743,8 +793,31 @@ impl<R: StageDischarge> Integrator<'_, R> {
                 ..p1
             },
             released,
+            scheme,
+            stiffness,
         )
     }
+}
+
+/// One forecast step as [`predict_release_traced`] reports it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ForecastStep {
+    /// End of the step, s from now.
+    pub end_s: u32,
+    /// Stage at the end of the step, m.
+    pub stage_m: f32,
+    /// Storage at the end of the step, m³.
+    pub storage_m3: f32,
+    /// Release at the end of the step, m³/s.
+    pub release_m3s: f32,
+    /// Volume released over the step, m³.
+    pub released_m3: f32,
+    /// The scheme the step used (trapezoid, backward Euler, or emptied to the floor).
+    pub scheme: Scheme,
+    /// The trapezoid's secant stiffness `dt·ΔQ/ΔS` that decided the scheme (kept at ≤ 2),
+    /// NaN when the trapezoid had no root above the floor.
+    pub trapezoid_stiffness: f32,
 }
 
 /// Routes `outlook` through `pond` from `storage_m3` (NaN or negative reads as empty) with the
@@ -783,6 +856,19 @@ pub fn predict_release(
     storage_m3: f32,
     outlook: &Outlook,
     limits: &Limits,
+) -> Prediction {
+    predict_release_traced(pond, release, storage_m3, outlook, limits, |_| {})
+}
+
+/// [`predict_release`], handing each step to `on_step` as it is taken (for plots of the
+/// forecast path, and for checks that need to know which scheme each step used).
+pub fn predict_release_traced(
+    pond: &StageStorage,
+    release: &impl StageDischarge,
+    storage_m3: f32,
+    outlook: &Outlook,
+    limits: &Limits,
+    mut on_step: impl FnMut(&ForecastStep),
 ) -> Prediction {
     let s0 = sane(storage_m3);
     let h0 = pond.stage_m(s0);
@@ -834,9 +920,18 @@ pub fn predict_release(
     let dt = secs(dt_s);
     let mut t = 0_u32;
     for &q_in in outlook.inflow_m3s.iter() {
-        let (r, released) = integ.step(cur, q_in, dt);
+        let (r, released, scheme, trapezoid_stiffness) = integ.step(cur, q_in, dt);
         cur = r;
         t = t.saturating_add(dt_s);
+        on_step(&ForecastStep {
+            end_s: t,
+            stage_m: r.h,
+            storage_m3: r.v,
+            release_m3s: r.q,
+            released_m3: released,
+            scheme,
+            trapezoid_stiffness,
+        });
         p.released_m3 += released;
         if r.h > p.peak_stage_m {
             p.peak_stage_m = r.h;
@@ -888,15 +983,20 @@ pub fn release_to_hold(
     outlook: &Outlook,
     limits: &Limits,
 ) -> Hold {
+    hold_search(outlet.max_opening_m(), limits, |policy| {
+        predict(pond, outlet, storage_m3, outlook, policy, limits)
+    })
+}
+
+/// The bisection of [`release_to_hold`] with any predictor of a policy (the exact one or a
+/// [`Forecaster`]'s); `max_opening_m` is the full-open gate.
+fn hold_search(
+    max_opening_m: f32,
+    limits: &Limits,
+    predict_with: impl Fn(Policy) -> Prediction,
+) -> Hold {
     let permit = cap_of(limits.permit_m3s);
-    let at_permit = predict(
-        pond,
-        outlet,
-        storage_m3,
-        outlook,
-        Policy::CapRelease { cap_m3s: permit },
-        limits,
-    );
+    let at_permit = predict_with(Policy::CapRelease { cap_m3s: permit });
     if at_permit.holds(limits) {
         return Hold {
             cap_m3s: permit,
@@ -904,16 +1004,9 @@ pub fn release_to_hold(
             feasible: true,
         };
     }
-    let open = predict(
-        pond,
-        outlet,
-        storage_m3,
-        outlook,
-        Policy::Fixed {
-            opening_m: outlet.max_opening_m(),
-        },
-        limits,
-    );
+    let open = predict_with(Policy::Fixed {
+        opening_m: max_opening_m,
+    });
     if !open.holds(limits) || open.peak_release_m3s <= permit {
         return Hold {
             cap_m3s: open.peak_release_m3s.max(permit),
@@ -929,14 +1022,7 @@ pub fn release_to_hold(
             break;
         }
         let mid = 0.5 * (lo + hi);
-        let p = predict(
-            pond,
-            outlet,
-            storage_m3,
-            outlook,
-            Policy::CapRelease { cap_m3s: mid },
-            limits,
-        );
+        let p = predict_with(Policy::CapRelease { cap_m3s: mid });
         if p.holds(limits) {
             hi = mid;
             best = p;

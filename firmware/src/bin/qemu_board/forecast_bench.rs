@@ -1,11 +1,17 @@
-//! The `bench forecast1 N` / `bench forecast20 N` kernels: `N` full storage forecasts (outlook
-//! from the time–area state and persisting rain, 3 h horizon at 180 s, then 1 or 20 candidate
-//! gate openings). The scene is the invented one of `tests/benches/forecast.rs`, so the guest
+//! The forecast kernels of `bench KERNEL N`: `N` full storage forecasts (outlook from the
+//! time–area state and persisting rain, 3 h horizon at 180 s, then 1 or 20 candidate gate
+//! openings). The scene is the invented one of `tests/benches/forecast.rs`, so the guest
 //! count here and the host callgrind count there measure the same work.
+//!
+//! - `forecast1`, `forecast20`: the fast path, a [`Forecaster`] built for each forecast
+//!   ([`Forecaster::reaching`], its fixed-structure table included in the count);
+//! - `forecast20kept`: the fast path with one [`Forecaster`] built before the loop and kept
+//!   (the table built once per configuration, as a controller may keep it);
+//! - `exact1`, `exact20`: the exact [`predict`] for every candidate (the path before the table).
 
 use core::hint::black_box;
 
-use holdback_core::forecast::{FutureRain, Limits, Outlook, Policy, predict};
+use holdback_core::forecast::{Forecaster, FutureRain, Limits, Outlook, Policy, predict};
 use holdback_core::hydraulics::{CircularOrifice, Outlet, Riser, SluiceGate, Spillway};
 use holdback_core::runoff::{
     AreaHa, Catchment, RunoffCoefficient, SubCatchment, TimeAreaInflow, TimeAreaResponse,
@@ -50,28 +56,47 @@ fn scene() -> Option<(StageStorage, Outlet, TimeAreaInflow, Limits)> {
     Some((pond, outlet, runoff, Limits::new(0.12, 102.4, 102.9).ok()?))
 }
 
+/// How the candidates of one forecast are predicted.
+#[derive(Clone, Copy, PartialEq, Eq)]
+pub enum Path {
+    /// The exact [`predict`].
+    Exact,
+    /// A [`Forecaster`] built for each forecast.
+    Fast,
+    /// One [`Forecaster`] built before the loop, kept for every forecast.
+    Kept,
+}
+
 /// `n` forecasts with `candidates` openings each (evenly spaced over the gate's travel).
 #[inline(never)]
-pub fn run(candidates: u16, n: u32) -> Option<()> {
+pub fn run(candidates: u16, n: u32, path: Path) -> Option<()> {
     let (pond, outlet, runoff, limits) = scene()?;
     let future = FutureRain::Persist {
         intensity_mm_h: 25.0,
         for_s: 3600,
     };
     let steps = f32::from(candidates.saturating_sub(1).max(1));
+    let kept = Forecaster::new(&pond, &outlet, pond.top_m());
     for _ in 0..n {
         let look =
             Outlook::from_time_area(black_box(&runoff), &future, None, 180, 3 * 3600).ok()?;
+        let s0 = black_box(900.0);
+        let built;
+        let fc = match path {
+            Path::Exact => None,
+            Path::Fast => {
+                built = Forecaster::reaching(&pond, &outlet, s0, &look);
+                Some(&built)
+            }
+            Path::Kept => Some(&kept),
+        };
         for k in 0..candidates {
             let a = outlet.max_opening_m() * f32::from(k) / steps;
-            let p = predict(
-                &pond,
-                &outlet,
-                black_box(900.0),
-                &look,
-                Policy::Fixed { opening_m: a },
-                &limits,
-            );
+            let policy = Policy::Fixed { opening_m: a };
+            let p = match fc {
+                Some(f) => f.predict(s0, &look, policy, &limits),
+                None => predict(&pond, &outlet, s0, &look, policy, &limits),
+            };
             black_box(p.peak_stage_m);
         }
     }

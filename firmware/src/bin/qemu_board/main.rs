@@ -14,9 +14,10 @@
 //!   [`BENCH_STAGES`] stages, `N` times over, and writes nothing. Run under the
 //!   `qemu-icount` plugin, the instruction count of `N` passes minus that of 0 passes, over
 //!   `N·BENCH_STAGES`, is the exact cost of one loop iteration; `none` gives the loop's own
-//!   cost (see `scripts/qemu-icount.sh`). `forecast1` and `forecast20` instead run `N` whole
-//!   storage forecasts with 1 or 20 candidate openings (see [`forecast_bench`]); count(2N) −
-//!   count(N) over N is the exact cost of one.
+//!   cost (see `scripts/qemu-icount.sh`). `forecast1`, `forecast20`, `forecast20kept`,
+//!   `exact1` and `exact20` instead run `N` whole storage forecasts with 1 or 20 candidate
+//!   openings, on the fast or the exact path (see [`forecast_bench`]); count(2N) − count(N)
+//!   over N is the exact cost of one.
 //!
 //! At exit the board prints `stack: N bytes used` (the painted high-water mark, see
 //! [`stack`]) to stderr.
@@ -48,6 +49,7 @@ use core::hint::black_box;
 
 use holdback_core::math;
 
+use forecast_bench::Path;
 use semihosting::fs::File;
 use semihosting::io::{Read, Write};
 use step::Step;
@@ -156,8 +158,11 @@ fn bench(kernel: &str, n: u32) -> Result<(), Exit> {
         "pow1_5" => bench_with(math::pow1_5, n),
         "pow2_5" => bench_with(math::pow2_5, n),
         "powf1_5" => bench_with(|h| math::powf(h, 1.5), n),
-        "forecast1" => forecast_bench::run(1, n).ok_or(Exit::Usage)?,
-        "forecast20" => forecast_bench::run(20, n).ok_or(Exit::Usage)?,
+        "forecast1" => forecast_bench::run(1, n, Path::Fast).ok_or(Exit::Usage)?,
+        "forecast20" => forecast_bench::run(20, n, Path::Fast).ok_or(Exit::Usage)?,
+        "forecast20kept" => forecast_bench::run(20, n, Path::Kept).ok_or(Exit::Usage)?,
+        "exact1" => forecast_bench::run(1, n, Path::Exact).ok_or(Exit::Usage)?,
+        "exact20" => forecast_bench::run(20, n, Path::Exact).ok_or(Exit::Usage)?,
         _ => return Err(Exit::Usage),
     }
     Ok(())
