@@ -213,11 +213,14 @@ code_enum! {
 
 code_enum! {
     /// What became of a remote command frame: accepted, or the one reason it was refused.
-    /// The firmware's command verifier checks in this order and reports the first failure.
+    /// The firmware's command verifier checks in code order (1 to 5 before the command's
+    /// authenticity and freshness are known, 6 and up after) and reports the first failure.
+    /// [`Accepted`](Self::Accepted) and every code from [`UnknownKind`](Self::UnknownKind) up
+    /// mean the frame was authentic and fresh, so its counter was used up.
     CommandOutcome {
         /// Authentic, fresh and in range: handed to the controller.
         Accepted = 0,
-        /// Too short or too long for its kind.
+        /// Shorter or longer than any frame can be.
         Malformed = 1,
         /// A frame version this device does not know.
         UnknownVersion = 2,
@@ -229,14 +232,16 @@ code_enum! {
         Replay = 5,
         /// Authentic, but of a kind this firmware does not know.
         UnknownKind = 6,
+        /// Authentic, but its arguments are not the length its kind needs.
+        BadLength = 7,
         /// Manual opening negative, not finite or above the gate's maximum.
-        BadOpening = 7,
+        BadOpening = 8,
         /// Manual duration zero or above the manual limit.
-        BadDuration = 8,
+        BadDuration = 9,
         /// A mode that may not be commanded remotely.
-        ModeNotAllowed = 9,
+        ModeNotAllowed = 10,
         /// A configuration chunk that is empty, too long or outside the blob.
-        BadChunk = 10,
+        BadChunk = 11,
     }
 }
 
@@ -332,8 +337,9 @@ pub enum EventBody {
     },
     /// A remote command frame was received and accepted or refused.
     RemoteCommand {
-        /// The frame's counter. Trusted only when `outcome` is past [`CommandOutcome::BadTag`]
-        /// in the check order; before that it is what the (unauthenticated) frame claimed.
+        /// The frame's counter. Authenticated only when `outcome` is
+        /// [`CommandOutcome::Accepted`] or from [`CommandOutcome::Replay`] on; otherwise what
+        /// the unauthenticated frame claimed (0 when too short to say).
         counter: u32,
         /// The frame's command-kind byte (firmware-defined; 0 when the frame was too short).
         kind: u8,
@@ -680,8 +686,8 @@ mod tests {
         let payload = [0x02, 0xC8, 0x01, 0x07, 0xF0, 0xA2, 0x04, 0x04, 0x04];
         assert_eq!(&buf[2..n - 4], &payload);
         assert_eq!(decode_exact(&buf[..n]), Ok(rec));
-        assert_eq!(CommandOutcome::BadChunk.code(), 10);
-        assert_eq!(CommandOutcome::from_code(11), None);
+        assert_eq!(CommandOutcome::BadChunk.code(), 11);
+        assert_eq!(CommandOutcome::from_code(12), None);
     }
 
     #[test]

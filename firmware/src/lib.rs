@@ -22,7 +22,9 @@
 #![warn(missing_docs)]
 
 pub mod drivers;
+pub mod command;
 pub mod eventlog;
+pub mod telemetry;
 
 /// A stage reading from an analog front end, before any filtering.
 ///
