@@ -287,11 +287,7 @@ impl Limits {
             .outlet()
             .gate()
             .map_or(f32::NAN, |g| g.max_opening_m());
-        Limits::new(
-            max_opening_m,
-            config.control().manual_max_s,
-            max_config_len,
-        )
+        Limits::new(max_opening_m, config.control().manual_max_s, max_config_len)
     }
 
     /// Largest manual opening, m.

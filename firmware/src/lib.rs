@@ -21,8 +21,8 @@
 )]
 #![warn(missing_docs)]
 
-pub mod drivers;
 pub mod command;
+pub mod drivers;
 pub mod eventlog;
 pub mod telemetry;
 

@@ -29,8 +29,8 @@ use holdback_core::event::{
     AlarmKind, CommandOutcome, EventBody, EventRecord, ExceedReason, FaultKind, FaultSource,
     HealthFlags, ModeCode,
 };
-use serde::ser::{SerializeSeq, SerializeStruct, Serializer};
 use serde::Serialize;
+use serde::ser::{SerializeSeq, SerializeStruct, Serializer};
 
 /// Schema version, the `"v"` field of every message. Fields are only ever added; a change to
 /// an existing field's meaning bumps it.
@@ -111,7 +111,10 @@ impl AlarmSet {
 
     /// The active alarms, in code order.
     pub fn iter(self) -> impl Iterator<Item = AlarmKind> {
-        AlarmKind::ALL.iter().copied().filter(move |k| self.contains(*k))
+        AlarmKind::ALL
+            .iter()
+            .copied()
+            .filter(move |k| self.contains(*k))
     }
 
     fn bit(kind: AlarmKind) -> u32 {
