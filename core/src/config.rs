@@ -13,7 +13,10 @@
 //! - `floor ≤ normal < crest − freeboard < crest`, all within the sensor's stage range;
 //! - the safe opening lies in `[0, max opening]`;
 //! - the permitted release is positive and finite, the margin in `[0, 0.5]`;
-//! - control periods are positive and the forecast horizon fits the outlook capacity.
+//! - control periods are positive and the forecast horizon fits the outlook capacity;
+//! - the catchment's runoff step is a whole number of control steps and the forecast step a
+//!   whole number of runoff steps (at most 3600 s);
+//! - the gauge settings pass the rain gauge's own checks; moves per hour are 1..=64.
 
 use core::fmt;
 
@@ -189,12 +192,21 @@ pub struct SensorLimits {
     pub stuck_s: u32,
     /// This many missing readings in a row is a stage fault.
     pub missing_steps: u16,
+    /// Reading-to-reading noise allowed on top of `max_stage_rate_m_s` before a change counts
+    /// as implausible, m (≥ 0; 0.01 m is a starting point for a pressure transducer — common
+    /// practice, no source; [`SensorLimits::DEFAULT_NOISE_M`]).
+    pub noise_m: f32,
     /// Gate position may differ from the command by this much once the gate has settled, m.
     pub position_tolerance_m: f32,
     /// A commanded move that has not arrived within this time is a gate fault, s.
     pub move_timeout_s: u32,
     /// The rain gauge.
     pub gauge: GaugeSettings,
+}
+
+impl SensorLimits {
+    /// Default for [`SensorLimits::noise_m`], m (common practice, no source).
+    pub const DEFAULT_NOISE_M: f32 = 0.01;
 }
 
 /// What to do when the controller cannot trust its inputs.
@@ -237,6 +249,9 @@ pub struct PondConfig {
 /// Largest forecast horizon in forecast steps.
 pub const MAX_HORIZON_STEPS: u32 = 64;
 
+/// Largest `control.max_moves_per_hour` (the controller keeps the times of this many moves).
+pub const MAX_MOVES_PER_HOUR: usize = 64;
+
 impl PondConfig {
     /// Validates `parts` (every number, then the rules between them).
     pub fn new(parts: PondParts) -> Result<PondConfig, ConfigError> {
@@ -277,6 +292,7 @@ impl PondConfig {
             ));
         }
         Self::check_control(&parts.control)?;
+        Self::check_steps(&parts.control, parts.catchment.dt_s())?;
         Self::check_sensors(&parts.sensors, floor, l.crest_m)?;
         Ok(PondConfig { parts })
     }
@@ -317,12 +333,39 @@ impl PondConfig {
         validate::non_negative("control.design_return_period_yr", c.design_return_period_yr)?;
         validate::non_negative("control.deadband_m", c.deadband_m)?;
         validate::positive("control.max_rate_m_s", c.max_rate_m_s)?;
-        if c.max_moves_per_hour == 0 {
+        if c.max_moves_per_hour == 0 || usize::from(c.max_moves_per_hour) > MAX_MOVES_PER_HOUR {
             return Err(ConfigError::Invalid(Invalid {
                 field: "control.max_moves_per_hour",
-                value: 0.0,
-                rule: "must be >= 1",
+                value: f32::from(c.max_moves_per_hour),
+                rule: "must be in 1..=64",
             }));
+        }
+        if c.forecast_step_s > 3600 {
+            return Err(inconsistent(
+                "control.forecast_step_s",
+                c.forecast_step_s as f32,
+                "must be at most 3600 s",
+            ));
+        }
+        Ok(())
+    }
+
+    /// The rules between the control periods and the catchment's runoff step: the runoff step
+    /// is a whole number of control steps, and the forecast step a whole number of runoff steps.
+    fn check_steps(c: &ControlSettings, runoff_dt_s: u32) -> Result<(), ConfigError> {
+        if !runoff_dt_s.is_multiple_of(c.step_s) {
+            return Err(inconsistent(
+                "control.step_s",
+                c.step_s as f32,
+                "must divide the catchment response's time step",
+            ));
+        }
+        if !c.forecast_step_s.is_multiple_of(runoff_dt_s) {
+            return Err(inconsistent(
+                "control.forecast_step_s",
+                c.forecast_step_s as f32,
+                "must be a whole multiple of the catchment response's time step",
+            ));
         }
         Ok(())
     }
@@ -354,7 +397,13 @@ impl PondConfig {
                 "stuck_s, move_timeout_s and missing_steps must all be > 0",
             ));
         }
-        validate::positive("sensors.gauge.bucket_mm", s.gauge.bucket_mm)?;
+        validate::non_negative("sensors.noise_m", s.noise_m)?;
+        // The controller builds its gauge from these settings: they must pass the gauge's own
+        // checks (bucket, plausible intensity, spread cap, clog and dry times).
+        crate::rain::RainGauge::<1>::new(&s.gauge, &[3600]).map_err(|e| match e {
+            crate::rain::RainError::Invalid(i) => ConfigError::Invalid(i),
+            _ => inconsistent("sensors.gauge", 0.0, "rejected by the rain gauge"),
+        })?;
         Ok(())
     }
 

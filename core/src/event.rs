@@ -174,6 +174,22 @@ code_enum! {
         LimitConflict = 6,
         /// Stored data failed its check.
         Corrupt = 7,
+        /// A reading that does not change at all while a change is expected.
+        Stuck = 8,
+        /// A jump that reverted within a step or two (the reading was discarded).
+        Spike = 9,
+        /// A change faster than the pond can physically make that did not revert.
+        RateOfChange = 10,
+        /// Readings missing several steps in a row.
+        Missing = 11,
+        /// A rain gauge that counts no rain while the pond rises.
+        Clogged = 12,
+        /// A rain gauge tipping faster than plausible rain.
+        Chatter = 13,
+        /// Position feedback disagreeing with the settled command.
+        Disagree = 14,
+        /// The drive itself reported a fault (timeout, stall, overcurrent).
+        DriverFault = 15,
     }
 }
 
@@ -334,6 +350,13 @@ pub enum EventBody {
         mode: ModeCode,
         /// Sensor health.
         health: HealthFlags,
+    },
+    /// An operator command was refused because a value was out of range.
+    CommandRejected {
+        /// Which command (controller-defined code: 0 manual opening, 1 manual duration).
+        command: u8,
+        /// The value refused.
+        value: f32,
     },
     /// A remote command frame was received and accepted or refused.
     RemoteCommand {
@@ -561,7 +584,7 @@ pub fn decode_exact(bytes: &[u8]) -> Result<EventRecord, DecodeError> {
 mod tests {
     use super::*;
 
-    fn all_bodies() -> [EventBody; 8] {
+    fn all_bodies() -> [EventBody; 9] {
         [
             EventBody::ModeChange {
                 from: ModeCode::Standby,
@@ -596,6 +619,10 @@ mod tests {
                 opening: 0.75,
                 mode: ModeCode::Drawdown,
                 health: HealthFlags(HealthFlags::RAIN),
+            },
+            EventBody::CommandRejected {
+                command: 1,
+                value: 0.0,
             },
             EventBody::RemoteCommand {
                 counter: 70_000,
@@ -681,9 +708,9 @@ mod tests {
         };
         let mut buf = [0u8; MAX_FRAME_LEN];
         let n = encode(&rec, &mut buf).unwrap();
-        // seq 2 = [0x02]; time 200 = varint [0xC8, 0x01]; variant 7 = [0x07];
+        // seq 2 = [0x02]; time 200 = varint [0xC8, 0x01]; variant 8 = [0x08];
         // counter 70 000 = 0x11170 = varint [0xF0, 0xA2, 0x04]; kind 4; outcome BadTag = 4.
-        let payload = [0x02, 0xC8, 0x01, 0x07, 0xF0, 0xA2, 0x04, 0x04, 0x04];
+        let payload = [0x02, 0xC8, 0x01, 0x08, 0xF0, 0xA2, 0x04, 0x04, 0x04];
         assert_eq!(&buf[2..n - 4], &payload);
         assert_eq!(decode_exact(&buf[..n]), Ok(rec));
         assert_eq!(CommandOutcome::BadChunk.code(), 11);
@@ -711,7 +738,7 @@ mod tests {
     #[test]
     fn variant_indices_are_append_only() {
         // The postcard variant index is the byte after seq and time (both one byte here).
-        let expected = [0u8, 1, 2, 3, 4, 5, 6, 7];
+        let expected = [0u8, 1, 2, 3, 4, 5, 6, 7, 8];
         for (body, idx) in all_bodies().into_iter().zip(expected) {
             let mut buf = [0u8; MAX_FRAME_LEN];
             encode(

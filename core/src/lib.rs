@@ -33,11 +33,13 @@
 #![warn(missing_docs)]
 
 pub mod config;
+pub mod control;
 pub mod event;
 pub mod flow;
 pub mod forecast;
 pub mod hydraulics;
 pub mod math;
+pub mod packed;
 pub mod rain;
 pub mod routing;
 pub mod runoff;

@@ -62,6 +62,7 @@ use core::fmt;
 
 use hmac::{Hmac, KeyInit, Mac};
 use holdback_core::config::PondConfig;
+use holdback_core::control::Command;
 use holdback_core::event::{CommandOutcome, EventBody, ModeCode};
 use sha2::Sha256;
 
@@ -188,6 +189,21 @@ pub trait CommandSink {
     fn set_mode(&mut self, mode: SafeMode);
     /// Stage a chunk of a new configuration.
     fn config_chunk(&mut self, chunk: &ConfigChunk<'_>);
+}
+
+/// The controller input for `command`: `Manual`, `Resume` and `AcknowledgeAlarms` map to the
+/// [`Command`] of the same name (the controller checks the bounds again); `SetMode` and
+/// `UpdateConfig` are the main loop's to handle and give `None`.
+pub fn control_command(command: &RemoteCommand<'_>) -> Option<Command> {
+    match command {
+        RemoteCommand::Manual { opening_m, for_s } => Some(Command::Manual {
+            opening_m: *opening_m,
+            for_s: *for_s,
+        }),
+        RemoteCommand::Resume => Some(Command::Resume),
+        RemoteCommand::AcknowledgeAlarms => Some(Command::AcknowledgeAlarms),
+        RemoteCommand::SetMode(_) | RemoteCommand::UpdateConfig(_) => None,
+    }
 }
 
 /// Hand `command` to the matching method of `sink`.

@@ -283,6 +283,10 @@ impl Serialize for EventMessage<'_> {
                 m.serialize_field("mode", mode_word(mode))?;
                 m.serialize_field("health", &health.0)?;
             }
+            EventBody::CommandRejected { command, value } => {
+                m.serialize_field("command", &command)?;
+                m.serialize_field("value_milli", &scaled(value, MILLI))?;
+            }
             EventBody::RemoteCommand {
                 counter,
                 kind,
@@ -307,6 +311,7 @@ pub fn event_word(body: &EventBody) -> &'static str {
         EventBody::PermitExceedance { .. } => "permit_exceedance",
         EventBody::Alarm { .. } => "alarm",
         EventBody::Sample { .. } => "sample",
+        EventBody::CommandRejected { .. } => "command_rejected",
         EventBody::RemoteCommand { .. } => "remote_command",
     }
 }
@@ -366,6 +371,14 @@ pub fn fault_word(kind: FaultKind) -> &'static str {
         FaultKind::Stall => "stall",
         FaultKind::LimitConflict => "limit_conflict",
         FaultKind::Corrupt => "corrupt",
+        FaultKind::Stuck => "stuck",
+        FaultKind::Spike => "spike",
+        FaultKind::RateOfChange => "rate_of_change",
+        FaultKind::Missing => "missing",
+        FaultKind::Clogged => "clogged",
+        FaultKind::Chatter => "chatter",
+        FaultKind::Disagree => "disagree",
+        FaultKind::DriverFault => "driver_fault",
         _ => UNKNOWN,
     }
 }

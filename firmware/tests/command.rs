@@ -514,6 +514,36 @@ fn dispatch_reaches_the_matching_sink_method() {
     );
 }
 
+/// The controller's commands come from the three kinds of the same name; the others are the
+/// main loop's.
+#[test]
+fn control_mapping() {
+    use holdback_core::control::Command;
+    let m = RemoteCommand::Manual {
+        opening_m: 0.25,
+        for_s: 30,
+    };
+    assert_eq!(
+        command::control_command(&m),
+        Some(Command::Manual {
+            opening_m: 0.25,
+            for_s: 30
+        })
+    );
+    assert_eq!(
+        command::control_command(&RemoteCommand::Resume),
+        Some(Command::Resume)
+    );
+    assert_eq!(
+        command::control_command(&RemoteCommand::AcknowledgeAlarms),
+        Some(Command::AcknowledgeAlarms)
+    );
+    assert_eq!(
+        command::control_command(&RemoteCommand::SetMode(SafeMode::Failsafe)),
+        None
+    );
+}
+
 /// Constructors and the signer refuse what they cannot honour.
 #[test]
 fn constructor_and_signer_errors() {

@@ -306,6 +306,10 @@ fn worst_case_lengths_fit_the_published_maxima() {
             });
         }
     }
+    bodies.push(EventBody::CommandRejected {
+        command: u8::MAX,
+        value: big,
+    });
     for o in CommandOutcome::ALL {
         bodies.push(EventBody::RemoteCommand {
             counter: u32::MAX,
@@ -447,7 +451,7 @@ proptest! {
     fn event_parses(
         seq: u32, time_s: u32,
         a in any_f32_or_special(), b in any_f32_or_special(),
-        m in mode(), raw: u8, which in 0usize..8,
+        m in mode(), raw: u8, which in 0usize..9,
     ) {
         let body = match which {
             0 => EventBody::ModeChange { from: m, to: m, reason: raw },
@@ -460,6 +464,7 @@ proptest! {
             5 => EventBody::Alarm { kind: AlarmKind::ALL[raw as usize % AlarmKind::ALL.len()], value: a },
             6 => EventBody::Sample { stage_m: a, storage_m3: b, release_m3s: a, opening: b, mode: m,
                 health: HealthFlags(raw) },
+            7 => EventBody::CommandRejected { command: raw, value: a },
             _ => EventBody::RemoteCommand { counter: seq, kind: raw,
                 outcome: CommandOutcome::ALL[raw as usize % CommandOutcome::ALL.len()] },
         };

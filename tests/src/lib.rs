@@ -6,6 +6,8 @@
 //! The checks themselves are in `tests/`; benchmarks in `benches/`.
 
 pub mod hydraulics64;
+pub mod plant;
+pub mod ponds;
 pub mod rain64;
 pub mod refdata;
 pub mod runoff64;

@@ -1,0 +1,1067 @@
+//! The pond file (TOML): everything the device needs about one pond, read into the core's
+//! [`PondSpec`] and validated through the core constructors, with errors named by their path
+//! in the file and warnings for what is legal but suspicious.
+//!
+//! SI by default (keys carry the unit: `_m`, `_m2`, `_m3s`, `_ha`, `_mm_h`, `_s`); a
+//! top-level `units = "us"` takes US customary keys instead (`_ft`, `_ft2`, `_cfs`, `_acres`,
+//! `_in_h`), converted once at load by [`crate::units`]. The format is described in
+//! `host-sim/POND-FILE.md` and shown by `examples/demo-pond.toml`.
+
+use std::fmt;
+
+use holdback_core::config::{ControlSettings, PondConfig};
+use holdback_core::hydraulics::{FixedStructure, Outlet};
+use holdback_core::packed::{
+    BuildError, CatchmentSpec, ControlSpec, FormulaSpec, GateSpec, IdfSpec, OutletSpec, PackError,
+    PondSpec, SensorSpec, SpecPart, StorageSpec, StructureSpec, SubCatchmentSpec,
+};
+use holdback_core::routing::{self, Inflow};
+use holdback_core::runoff::{FlowPath, Segment, TimeOfConcentration};
+use holdback_core::validate::Invalid;
+use serde::Deserialize;
+
+use crate::units::{self, Renamed};
+
+/// The built-in demo pond (also in `host-sim/examples/demo-pond.toml`).
+pub const DEMO_POND: &str = include_str!("../examples/demo-pond.toml");
+
+/// A problem found loading a pond file.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Problem {
+    /// Dotted path in the file (`outlet.gate.width_m`), or empty for the whole file.
+    pub path: String,
+    /// What is wrong, starting with the value where there is one.
+    pub message: String,
+}
+
+impl fmt::Display for Problem {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.path.is_empty() {
+            f.write_str(&self.message)
+        } else {
+            write!(f, "{}{}", self.path, self.message)
+        }
+    }
+}
+
+/// A loaded, validated pond.
+#[derive(Debug, Clone)]
+pub struct Pond {
+    /// Name from the file.
+    pub name: String,
+    /// The raw SI numbers (what `pack` writes).
+    pub spec: PondSpec,
+    /// The validated configuration.
+    pub config: PondConfig,
+    /// The pre-retrofit fixed outlet, if described (the fixed-outlet baseline).
+    pub existing: Option<Outlet>,
+    /// Sub-catchment names, in order.
+    pub sub_names: Vec<String>,
+    /// Warnings: legal but suspicious.
+    pub warnings: Vec<String>,
+}
+
+// ---------------------------------------------------------------- file layout (serde)
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct File {
+    format: u32,
+    #[serde(default)]
+    name: String,
+    #[serde(default, rename = "units")]
+    _units: Option<String>,
+    storage: StorageFile,
+    outlet: OutletFile,
+    #[serde(default)]
+    existing: Option<ExistingFile>,
+    levels: LevelsFile,
+    permit: PermitFile,
+    catchment: CatchmentFile,
+    idf: IdfFile,
+    #[serde(default)]
+    control: ControlFile,
+    sensors: SensorsFile,
+    safe: SafeFile,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
+enum StorageFile {
+    SurveyArea {
+        #[serde(default)]
+        method: Option<String>,
+        stage_area_m_m2: Vec<[f32; 2]>,
+    },
+    SurveyVolume {
+        stage_volume_m_m3: Vec<[f32; 2]>,
+    },
+    Basin {
+        floor_m: f32,
+        length_m: f32,
+        width_m: f32,
+        side_slope_h_per_v: f32,
+        depth_m: f32,
+    },
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
+enum StructureFile {
+    CircularOrifice {
+        invert_m: f32,
+        diameter_m: f32,
+        cd: f32,
+    },
+    RectangularOrifice {
+        invert_m: f32,
+        width_m: f32,
+        height_m: f32,
+        cd: f32,
+    },
+    RectangularWeir {
+        crest_m: f32,
+        width_m: f32,
+        cd: f32,
+        #[serde(default)]
+        end_contractions: u8,
+    },
+    VNotchWeir {
+        crest_m: f32,
+        angle_deg: f32,
+        cd: f32,
+    },
+    BroadCrestedWeir {
+        crest_m: f32,
+        width_m: f32,
+        cd: f32,
+    },
+    RiserCircular {
+        crest_m: f32,
+        diameter_m: f32,
+        weir_cd: f32,
+        orifice_cd: f32,
+    },
+    RiserRectangular {
+        crest_m: f32,
+        length_m: f32,
+        width_m: f32,
+        weir_cd: f32,
+        orifice_cd: f32,
+    },
+    Spillway {
+        crest_m: f32,
+        bottom_width_m: f32,
+        side_slope_h_per_v: f32,
+        cd: f32,
+    },
+}
+
+impl StructureFile {
+    fn spec(&self) -> StructureSpec {
+        match *self {
+            StructureFile::CircularOrifice {
+                invert_m,
+                diameter_m,
+                cd,
+            } => StructureSpec::CircularOrifice {
+                invert_m,
+                diameter_m,
+                cd,
+            },
+            StructureFile::RectangularOrifice {
+                invert_m,
+                width_m,
+                height_m,
+                cd,
+            } => StructureSpec::RectangularOrifice {
+                invert_m,
+                width_m,
+                height_m,
+                cd,
+            },
+            StructureFile::RectangularWeir {
+                crest_m,
+                width_m,
+                cd,
+                end_contractions,
+            } => StructureSpec::RectangularWeir {
+                crest_m,
+                width_m,
+                cd,
+                end_contractions,
+            },
+            StructureFile::VNotchWeir {
+                crest_m,
+                angle_deg,
+                cd,
+            } => StructureSpec::VNotchWeir {
+                crest_m,
+                angle_deg,
+                cd,
+            },
+            StructureFile::BroadCrestedWeir {
+                crest_m,
+                width_m,
+                cd,
+            } => StructureSpec::BroadCrestedWeir {
+                crest_m,
+                width_m,
+                cd,
+            },
+            StructureFile::RiserCircular {
+                crest_m,
+                diameter_m,
+                weir_cd,
+                orifice_cd,
+            } => StructureSpec::RiserCircular {
+                crest_m,
+                diameter_m,
+                weir_cd,
+                orifice_cd,
+            },
+            StructureFile::RiserRectangular {
+                crest_m,
+                length_m,
+                width_m,
+                weir_cd,
+                orifice_cd,
+            } => StructureSpec::RiserRectangular {
+                crest_m,
+                length_m,
+                width_m,
+                weir_cd,
+                orifice_cd,
+            },
+            StructureFile::Spillway {
+                crest_m,
+                bottom_width_m,
+                side_slope_h_per_v,
+                cd,
+            } => StructureSpec::Spillway {
+                crest_m,
+                bottom_width_m,
+                side_slope_h_per_v,
+                cd,
+            },
+        }
+    }
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct GateFile {
+    sill_m: f32,
+    width_m: f32,
+    max_opening_m: f32,
+    #[serde(default = "default_cc")]
+    cc: f32,
+    #[serde(default = "default_cv")]
+    cv: f32,
+}
+
+fn default_cc() -> f32 {
+    holdback_core::hydraulics::gate::DEFAULT_CONTRACTION_CC
+}
+fn default_cv() -> f32 {
+    0.98
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct OutletFile {
+    #[serde(default)]
+    fixed: Vec<StructureFile>,
+    gate: GateFile,
+    #[serde(default)]
+    tailwater_m: Option<f32>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct ExistingFile {
+    fixed: Vec<StructureFile>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct LevelsFile {
+    normal_m: f32,
+    crest_m: f32,
+    freeboard_m: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PermitFile {
+    release_m3s: f32,
+    #[serde(default = "default_margin")]
+    margin: f32,
+}
+
+fn default_margin() -> f32 {
+    0.05
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct CatchmentFile {
+    #[serde(default = "default_dt")]
+    dt_s: u32,
+    sub: Vec<SubFile>,
+}
+
+fn default_dt() -> u32 {
+    60
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SubFile {
+    #[serde(default)]
+    name: String,
+    c: f32,
+    area_ha: f32,
+    #[serde(default)]
+    tc_min: Option<f32>,
+    #[serde(default)]
+    flow_path: Option<FlowPathFile>,
+    #[serde(default)]
+    kirpich: Option<KirpichFile>,
+    #[serde(default)]
+    lag_s: u32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct KirpichFile {
+    length_m: f32,
+    slope_m_m: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct FlowPathFile {
+    #[serde(default)]
+    inlet_min: f32,
+    #[serde(default)]
+    segment: Vec<SegmentFile>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
+enum SegmentFile {
+    Velocity {
+        length_m: f32,
+        velocity_m_s: f32,
+    },
+    Pipe {
+        length_m: f32,
+        diameter_m: f32,
+        slope_m_m: f32,
+        manning_n: f32,
+    },
+    Rectangular {
+        length_m: f32,
+        width_m: f32,
+        depth_m: f32,
+        slope_m_m: f32,
+        manning_n: f32,
+    },
+    Trapezoidal {
+        length_m: f32,
+        bottom_width_m: f32,
+        depth_m: f32,
+        side_slope_h_per_v: f32,
+        slope_m_m: f32,
+        manning_n: f32,
+    },
+    /// A reach whose travel time is the Kirpich time for its length and slope.
+    Kirpich {
+        length_m: f32,
+        slope_m_m: f32,
+    },
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct IdfFile {
+    #[serde(default)]
+    min_duration_min: Option<f32>,
+    #[serde(default)]
+    max_duration_min: Option<f32>,
+    #[serde(default)]
+    curve: Vec<CurveFile>,
+    #[serde(default)]
+    table: Option<IdfTableFile>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct CurveFile {
+    return_period_yr: f32,
+    form: String,
+    a_mm_h: f32,
+    b: f32,
+    #[serde(default)]
+    c: Option<f32>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct IdfTableFile {
+    durations_min: Vec<f32>,
+    return_periods_yr: Vec<f32>,
+    /// One row per duration, one column per return period.
+    intensities_mm_h: Vec<Vec<f32>>,
+}
+
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+struct ControlFile {
+    step_s: Option<u32>,
+    forecast_every_s: Option<u32>,
+    horizon_s: Option<u32>,
+    forecast_step_s: Option<u32>,
+    persistence_s: Option<u32>,
+    design_return_period_yr: Option<f32>,
+    drawdown_target_s: Option<u32>,
+    min_detention_s: Option<u32>,
+    inter_event_s: Option<u32>,
+    deadband_m: Option<f32>,
+    min_move_interval_s: Option<u32>,
+    max_rate_m_s: Option<f32>,
+    max_moves_per_hour: Option<u16>,
+    manual_max_s: Option<u32>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SensorsFile {
+    stage_min_m: f32,
+    stage_max_m: f32,
+    #[serde(default = "d_rate")]
+    max_stage_rate_m_s: f32,
+    #[serde(default = "d_spike")]
+    spike_m: f32,
+    #[serde(default = "d_stuck")]
+    stuck_s: u32,
+    #[serde(default = "d_missing")]
+    missing_steps: u16,
+    #[serde(default = "d_tol")]
+    position_tolerance_m: f32,
+    #[serde(default = "d_timeout")]
+    move_timeout_s: u32,
+    #[serde(default)]
+    gauge: GaugeFile,
+}
+
+fn d_rate() -> f32 {
+    0.01
+}
+fn d_spike() -> f32 {
+    0.15
+}
+fn d_stuck() -> u32 {
+    3600
+}
+fn d_missing() -> u16 {
+    6
+}
+fn d_tol() -> f32 {
+    0.02
+}
+fn d_timeout() -> u32 {
+    300
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+struct GaugeFile {
+    bucket_mm: f32,
+    spread_cap_s: u32,
+    max_intensity_mm_h: f32,
+    clog_after_s: u32,
+    inter_event_dry_s: u32,
+}
+
+impl Default for GaugeFile {
+    fn default() -> Self {
+        let g = holdback_core::rain::GaugeSettings::default();
+        GaugeFile {
+            bucket_mm: g.bucket_mm,
+            spread_cap_s: g.spread_cap_s,
+            max_intensity_mm_h: g.max_intensity_mm_h,
+            clog_after_s: g.clog_after_s,
+            inter_event_dry_s: g.inter_event_dry_s,
+        }
+    }
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SafeFile {
+    safe_opening_m: f32,
+}
+
+// ---------------------------------------------------------------- loading
+
+fn problem(path: impl Into<String>, message: impl Into<String>) -> Problem {
+    Problem {
+        path: path.into(),
+        message: message.into(),
+    }
+}
+
+fn invalid(prefix: &str, e: &Invalid) -> Problem {
+    let field = match e.field {
+        "runoff_coefficient" => "c",
+        other => other,
+    };
+    let path = if prefix.is_empty() || field.contains('.') {
+        field.to_string()
+    } else {
+        format!("{prefix}.{field}")
+    };
+    problem(path, format!(" = {}: {}", e.value, e.rule))
+}
+
+/// Maps a core build error to the pond file's path.
+fn map_build(part: SpecPart, error: &BuildError) -> Problem {
+    use holdback_core::config::ConfigError;
+    use holdback_core::hydraulics::HydraulicsError;
+    use holdback_core::rain::RainError;
+    use holdback_core::runoff::RunoffError;
+    use holdback_core::storage::StorageError;
+    let prefix = match part {
+        SpecPart::Config => String::new(),
+        other => other.to_string(),
+    };
+    match error {
+        BuildError::Storage(StorageError::BadValue { row, invalid: e }) => {
+            invalid(&format!("storage[{row}]"), e)
+        }
+        BuildError::Storage(StorageError::Geometry(e)) => invalid("storage", e),
+        BuildError::Hydraulics(HydraulicsError::Invalid(e)) => invalid(&prefix, e),
+        BuildError::Runoff(RunoffError::Invalid(e)) => invalid(&prefix, e),
+        BuildError::Rain(RainError::Invalid(e)) => invalid("idf", e),
+        BuildError::Config(ConfigError::Invalid(e)) => invalid("", e),
+        BuildError::Config(ConfigError::Inconsistent { field, value, rule }) => {
+            problem(*field, format!(" = {value}: {rule}"))
+        }
+        other => problem(prefix, format!(": {other}")),
+    }
+}
+
+fn tc_s(i: usize, s: &SubFile) -> Result<u32, Problem> {
+    let path = format!("catchment.sub[{i}]");
+    let given = [
+        s.tc_min.is_some(),
+        s.flow_path.is_some(),
+        s.kirpich.is_some(),
+    ]
+    .iter()
+    .filter(|b| **b)
+    .count();
+    if given != 1 {
+        return Err(problem(
+            path,
+            ": give exactly one of tc_min, [flow_path] or [kirpich]",
+        ));
+    }
+    let runoff = |p: &str, e: holdback_core::runoff::RunoffError| match e {
+        holdback_core::runoff::RunoffError::Invalid(inv) => invalid(p, &inv),
+        other => problem(p.to_string(), format!(": {other}")),
+    };
+    if let Some(t) = s.tc_min {
+        return TimeOfConcentration::from_min(t)
+            .map(|t| t.s())
+            .map_err(|e| runoff(&path, e));
+    }
+    if let Some(k) = &s.kirpich {
+        let p = format!("{path}.kirpich");
+        return TimeOfConcentration::kirpich_si(k.length_m, k.slope_m_m)
+            .map(|t| t.s())
+            .map_err(|e| runoff(&p, e));
+    }
+    let fp = s
+        .flow_path
+        .as_ref()
+        .ok_or_else(|| problem(&path, ": no Tc"))?;
+    let mut segs = Vec::new();
+    for (j, seg) in fp.segment.iter().enumerate() {
+        let p = format!("{path}.flow_path.segment[{j}]");
+        let built = match *seg {
+            SegmentFile::Velocity {
+                length_m,
+                velocity_m_s,
+            } => Segment::at_velocity(length_m, velocity_m_s),
+            SegmentFile::Pipe {
+                length_m,
+                diameter_m,
+                slope_m_m,
+                manning_n,
+            } => Segment::full_pipe(length_m, diameter_m, slope_m_m, manning_n),
+            SegmentFile::Rectangular {
+                length_m,
+                width_m,
+                depth_m,
+                slope_m_m,
+                manning_n,
+            } => Segment::rectangular(length_m, width_m, depth_m, slope_m_m, manning_n),
+            SegmentFile::Trapezoidal {
+                length_m,
+                bottom_width_m,
+                depth_m,
+                side_slope_h_per_v,
+                slope_m_m,
+                manning_n,
+            } => Segment::trapezoidal(
+                length_m,
+                bottom_width_m,
+                depth_m,
+                side_slope_h_per_v,
+                slope_m_m,
+                manning_n,
+            ),
+            SegmentFile::Kirpich {
+                length_m,
+                slope_m_m,
+            } => TimeOfConcentration::kirpich_si(length_m, slope_m_m)
+                .and_then(|t| Segment::at_velocity(length_m, length_m / t.s() as f32)),
+        };
+        segs.push(built.map_err(|e| runoff(&p, e))?);
+    }
+    let inlet = fp.inlet_min * 60.0;
+    if !(inlet.is_finite() && (0.0..=172_800.0).contains(&inlet)) {
+        return Err(problem(
+            format!("{path}.flow_path.inlet_min"),
+            format!(" = {}: must be in [0, 2880] min", fp.inlet_min),
+        ));
+    }
+    FlowPath::new(inlet.round() as u32, &segs)
+        .map(|p| p.tc().s())
+        .map_err(|e| runoff(&format!("{path}.flow_path"), e))
+}
+
+fn vec_of<T: Clone, const N: usize>(
+    items: &[T],
+    path: &str,
+) -> Result<heapless::Vec<T, N>, Problem> {
+    heapless::Vec::from_slice(items).map_err(|_| {
+        problem(
+            path,
+            format!(": {} items given, at most {N} fit", items.len()),
+        )
+    })
+}
+
+fn rows(rows: &[[f32; 2]], path: &str) -> Result<heapless::Vec<(f32, f32), 32>, Problem> {
+    let v: Vec<(f32, f32)> = rows.iter().map(|r| (r[0], r[1])).collect();
+    vec_of(&v, path)
+}
+
+fn idf_spec(f: &IdfFile) -> Result<IdfSpec, Problem> {
+    match (&f.table, f.curve.is_empty()) {
+        (Some(t), true) => {
+            let nt = t.return_periods_yr.len();
+            let mut cells = Vec::new();
+            for (i, row) in t.intensities_mm_h.iter().enumerate() {
+                if row.len() != nt {
+                    return Err(problem(
+                        format!("idf.table.intensities_mm_h[{i}]"),
+                        format!(
+                            ": {} values, one per return period ({nt}) needed",
+                            row.len()
+                        ),
+                    ));
+                }
+                cells.extend_from_slice(row);
+            }
+            if t.intensities_mm_h.len() != t.durations_min.len() {
+                return Err(problem(
+                    "idf.table.intensities_mm_h",
+                    format!(
+                        ": {} rows, one per duration ({}) needed",
+                        t.intensities_mm_h.len(),
+                        t.durations_min.len()
+                    ),
+                ));
+            }
+            Ok(IdfSpec::Table {
+                durations_min: vec_of(&t.durations_min, "idf.table.durations_min")?,
+                return_periods_years: vec_of(&t.return_periods_yr, "idf.table.return_periods_yr")?,
+                intensities_mm_h: vec_of(&cells, "idf.table.intensities_mm_h")?,
+            })
+        }
+        (None, false) => {
+            let mut curves = Vec::new();
+            for (i, c) in f.curve.iter().enumerate() {
+                let p = format!("idf.curve[{i}]");
+                let form = match (c.form.as_str(), c.c) {
+                    ("talbot", None) => FormulaSpec::Talbot {
+                        a: c.a_mm_h,
+                        b: c.b,
+                    },
+                    ("sherman", Some(cc)) => FormulaSpec::Sherman {
+                        a: c.a_mm_h,
+                        b: c.b,
+                        c: cc,
+                    },
+                    ("power-law", None) => FormulaSpec::PowerLaw {
+                        a: c.a_mm_h,
+                        b: c.b,
+                    },
+                    ("sherman", None) => return Err(problem(p, ": sherman needs c")),
+                    ("talbot" | "power-law", Some(_)) => {
+                        return Err(problem(format!("{p}.c"), ": only sherman takes c"));
+                    }
+                    (other, _) => {
+                        return Err(problem(
+                            format!("{p}.form"),
+                            format!(" = \"{other}\": must be talbot, sherman or power-law"),
+                        ));
+                    }
+                };
+                curves.push((c.return_period_yr, form));
+            }
+            Ok(IdfSpec::Curves {
+                min_duration_min: f.min_duration_min.unwrap_or(5.0),
+                max_duration_min: f.max_duration_min.unwrap_or(1440.0),
+                curves: vec_of(&curves, "idf.curve")?,
+            })
+        }
+        _ => Err(problem(
+            "idf",
+            ": give either [[idf.curve]] entries or one [idf.table], not both",
+        )),
+    }
+}
+
+fn control_spec(c: &ControlFile) -> ControlSpec {
+    let d = ControlSettings::default();
+    ControlSpec {
+        step_s: c.step_s.unwrap_or(d.step_s),
+        forecast_every_s: c.forecast_every_s.unwrap_or(d.forecast_every_s),
+        horizon_s: c.horizon_s.unwrap_or(d.horizon_s),
+        forecast_step_s: c.forecast_step_s.unwrap_or(d.forecast_step_s),
+        persistence_s: c.persistence_s.unwrap_or(d.persistence_s),
+        design_return_period_yr: c
+            .design_return_period_yr
+            .unwrap_or(d.design_return_period_yr),
+        drawdown_target_s: c.drawdown_target_s.unwrap_or(d.drawdown_target_s),
+        min_detention_s: c.min_detention_s.unwrap_or(d.min_detention_s),
+        inter_event_s: c.inter_event_s.unwrap_or(d.inter_event_s),
+        deadband_m: c.deadband_m.unwrap_or(d.deadband_m),
+        min_move_interval_s: c.min_move_interval_s.unwrap_or(d.min_move_interval_s),
+        max_rate_m_s: c.max_rate_m_s.unwrap_or(d.max_rate_m_s),
+        max_moves_per_hour: c.max_moves_per_hour.unwrap_or(d.max_moves_per_hour),
+        manual_max_s: c.manual_max_s.unwrap_or(d.manual_max_s),
+    }
+}
+
+/// Errors: every problem found (at least one). On success the pond with its warnings.
+pub fn load_str(text: &str) -> Result<Pond, Vec<Problem>> {
+    let mut tree: toml::Value = toml::from_str(text).map_err(|e| vec![toml_problem(&e)])?;
+    let units_name = tree
+        .get("units")
+        .and_then(|u| u.as_str())
+        .unwrap_or("si")
+        .to_string();
+    let renamed: Vec<Renamed> = match units_name.as_str() {
+        "si" => Vec::new(),
+        "us" => units::us_to_si(&mut tree).map_err(|e| vec![problem("", e)])?,
+        other => {
+            return Err(vec![problem(
+                "units",
+                format!(" = \"{other}\": must be \"si\" or \"us\""),
+            )]);
+        }
+    };
+    let file: File = tree.try_into().map_err(|e: toml::de::Error| {
+        let mut p = toml_problem(&e);
+        us_note(&mut p, &renamed);
+        vec![p]
+    })?;
+    let mut pond = build(&file).map_err(|mut ps| {
+        for p in &mut ps {
+            us_note(p, &renamed);
+        }
+        ps
+    })?;
+    pond.warnings = warnings(&file, &pond);
+    Ok(pond)
+}
+
+fn us_note(p: &mut Problem, renamed: &[Renamed]) {
+    if let Some(r) = renamed.iter().find(|r| p.path == r.si_path) {
+        p.message
+            .push_str(&format!(" (value in SI; the file's key is {})", r.us_key));
+    }
+}
+
+fn toml_problem(e: &toml::de::Error) -> Problem {
+    let msg = e.message().trim().to_string();
+    problem("", format!("pond file: {msg}"))
+}
+
+fn build(f: &File) -> Result<Pond, Vec<Problem>> {
+    if f.format != 1 {
+        return Err(vec![problem(
+            "format",
+            format!(" = {}: this build reads format 1", f.format),
+        )]);
+    }
+    let one = |p: Problem| vec![p];
+    let storage = match &f.storage {
+        StorageFile::SurveyArea {
+            method,
+            stage_area_m_m2,
+        } => {
+            let r = rows(stage_area_m_m2, "storage.stage_area_m_m2").map_err(one)?;
+            match method.as_deref() {
+                None | Some("frustum") => StorageSpec::AreasFrustum(r),
+                Some("average-end-area") => StorageSpec::AreasAverageEnd(r),
+                Some(other) => {
+                    return Err(one(problem(
+                        "storage.method",
+                        format!(" = \"{other}\": must be frustum or average-end-area"),
+                    )));
+                }
+            }
+        }
+        StorageFile::SurveyVolume { stage_volume_m_m3 } => {
+            StorageSpec::Volumes(rows(stage_volume_m_m3, "storage.stage_volume_m_m3").map_err(one)?)
+        }
+        StorageFile::Basin {
+            floor_m,
+            length_m,
+            width_m,
+            side_slope_h_per_v,
+            depth_m,
+        } => StorageSpec::Basin {
+            floor_m: *floor_m,
+            length_m: *length_m,
+            width_m: *width_m,
+            side_slope_h_per_v: *side_slope_h_per_v,
+            depth_m: *depth_m,
+        },
+    };
+    let fixed: Vec<StructureSpec> = f.outlet.fixed.iter().map(StructureFile::spec).collect();
+    let g = &f.outlet.gate;
+    let mut problems = Vec::new();
+    let mut subs = Vec::new();
+    for (i, s) in f.catchment.sub.iter().enumerate() {
+        match tc_s(i, s) {
+            Ok(tc_s) => subs.push(SubCatchmentSpec {
+                c: s.c,
+                area_ha: s.area_ha,
+                tc_s,
+                lag_s: s.lag_s,
+            }),
+            Err(p) => problems.push(p),
+        }
+    }
+    if !problems.is_empty() {
+        return Err(problems);
+    }
+    let sn = &f.sensors;
+    let spec = PondSpec {
+        storage,
+        outlet: OutletSpec {
+            fixed: vec_of(&fixed, "outlet.fixed").map_err(one)?,
+            gate: GateSpec {
+                sill_m: g.sill_m,
+                width_m: g.width_m,
+                max_opening_m: g.max_opening_m,
+                cc: g.cc,
+                cv: g.cv,
+            },
+            tailwater_m: f.outlet.tailwater_m,
+        },
+        normal_m: f.levels.normal_m,
+        crest_m: f.levels.crest_m,
+        freeboard_m: f.levels.freeboard_m,
+        permit_m3s: f.permit.release_m3s,
+        permit_margin: f.permit.margin,
+        catchment: CatchmentSpec {
+            dt_s: f.catchment.dt_s,
+            subs: vec_of(&subs, "catchment.sub").map_err(one)?,
+        },
+        idf: idf_spec(&f.idf).map_err(one)?,
+        control: control_spec(&f.control),
+        sensors: SensorSpec {
+            stage_min_m: sn.stage_min_m,
+            stage_max_m: sn.stage_max_m,
+            max_stage_rate_m_s: sn.max_stage_rate_m_s,
+            spike_m: sn.spike_m,
+            stuck_s: sn.stuck_s,
+            missing_steps: sn.missing_steps,
+            position_tolerance_m: sn.position_tolerance_m,
+            move_timeout_s: sn.move_timeout_s,
+            bucket_mm: sn.gauge.bucket_mm,
+            spread_cap_s: sn.gauge.spread_cap_s,
+            max_intensity_mm_h: sn.gauge.max_intensity_mm_h,
+            clog_after_s: sn.gauge.clog_after_s,
+            inter_event_dry_s: sn.gauge.inter_event_dry_s,
+        },
+        safe_opening_m: f.safe.safe_opening_m,
+    };
+    let config = spec.build().map_err(|e| match e {
+        PackError::Build { part, error } => one(map_build(part, &error)),
+        other => one(problem("", other.to_string())),
+    })?;
+    let existing = match &f.existing {
+        None => None,
+        Some(ex) => {
+            let mut list: Vec<FixedStructure> = Vec::new();
+            for (i, s) in ex.fixed.iter().enumerate() {
+                let st = s.spec().build().map_err(|e| {
+                    one(map_build(
+                        SpecPart::Structure(0),
+                        &BuildError::Hydraulics(e),
+                    ))
+                    .into_iter()
+                    .map(|mut p| {
+                        p.path =
+                            p.path
+                                .replacen("outlet.fixed[0]", &format!("existing.fixed[{i}]"), 1);
+                        p
+                    })
+                    .collect::<Vec<_>>()
+                })?;
+                list.push(st);
+            }
+            Some(
+                Outlet::new(&list, None, f.outlet.tailwater_m)
+                    .map_err(|e| one(problem("existing", format!(": {e}"))))?,
+            )
+        }
+    };
+    Ok(Pond {
+        name: f.name.clone(),
+        spec,
+        config,
+        existing,
+        sub_names: f.catchment.sub.iter().map(|s| s.name.clone()).collect(),
+        warnings: Vec::new(),
+    })
+}
+
+/// Time (s) to drain from `from_m` to within 1 cm of the normal level with the gate fully
+/// open and no inflow, routed with the core's level-pool step; None if it takes longer than
+/// `limit_s`.
+pub fn drain_time_s(cfg: &PondConfig, from_m: f32, limit_s: u32) -> Option<u32> {
+    let outlet = cfg.outlet();
+    let open = outlet.at(outlet.max_opening_m());
+    let pond = cfg.storage();
+    let target = cfg.levels().normal_m + 0.01;
+    let mut s = pond.storage_m3(from_m);
+    let dt = 60;
+    let mut t = 0u32;
+    while t < limit_s {
+        if pond.stage_m(s) <= target {
+            return Some(t);
+        }
+        s = routing::step(pond, &open, s, Inflow::steady(0.0), dt).storage_m3;
+        t += dt;
+    }
+    (pond.stage_m(s) <= target).then_some(t)
+}
+
+fn warnings(f: &File, pond: &Pond) -> Vec<String> {
+    let cfg = &pond.config;
+    let mut w = Vec::new();
+    let crest = cfg.levels().crest_m;
+    let limit = cfg.stage_limit_m();
+    let permit = cfg.permit().release_m3s;
+    if let Some(ex) = &pond.existing {
+        let q = ex.fixed_discharge_m3s(crest);
+        if permit > q {
+            w.push(format!(
+                "permit.release_m3s = {permit}: above what the existing fixed outlet passes at \
+                 the crest ({q:.3} m3/s); the permit does not limit this pond"
+            ));
+        }
+    }
+    let target = cfg.control().drawdown_target_s;
+    match drain_time_s(cfg, limit, target.saturating_mul(4)) {
+        Some(t) if t <= target => {}
+        Some(t) => w.push(format!(
+            "control.drawdown_target_s = {target}: unreachable, draining from crest - \
+             freeboard ({limit:.2} m) with the gate fully open takes {:.1} h",
+            t as f64 / 3600.0
+        )),
+        None => w.push(format!(
+            "control.drawdown_target_s = {target}: unreachable, the pond does not drain from \
+             crest - freeboard ({limit:.2} m) to the normal level within {:.0} h with the gate \
+             fully open",
+            target as f64 * 4.0 / 3600.0
+        )),
+    }
+    let has_spillway =
+        cfg.outlet().fixed().iter().any(|s| {
+            matches!(s, FixedStructure::Spillway(_)) && (s.invert_m() - crest).abs() <= 0.01
+        });
+    if !has_spillway {
+        w.push(format!(
+            "levels.crest_m = {crest}: no spillway in outlet.fixed has its crest there; \
+             overtopping flow is not modelled"
+        ));
+    }
+    let safe = cfg.safe().safe_opening_m;
+    let q_safe = cfg.outlet().discharge_m3s(limit, safe);
+    if q_safe > permit {
+        w.push(format!(
+            "safe.safe_opening_m = {safe}: releases {q_safe:.3} m3/s at crest - freeboard, \
+             above the permit ({permit} m3/s)"
+        ));
+    }
+    let top = cfg.storage().top_m();
+    if crest > top {
+        w.push(format!(
+            "levels.crest_m = {crest}: above the top of the stage-storage table ({top}); \
+             storage there is extrapolated with vertical walls"
+        ));
+    }
+    if f.existing.is_none() {
+        w.push(
+            "existing: no pre-retrofit outlet described; the fixed-outlet baseline is skipped"
+                .to_string(),
+        );
+    }
+    w
+}
+
+/// Reads and loads a pond file from disk.
+pub fn load_path(path: &std::path::Path) -> Result<Pond, Vec<Problem>> {
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        vec![problem(
+            "",
+            format!("cannot read pond file {}: {e}", path.display()),
+        )]
+    })?;
+    load_str(&text)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn demo_pond_loads() {
+        let p = load_str(DEMO_POND).unwrap();
+        assert!(p.existing.is_some());
+        assert_eq!(p.sub_names.len(), 3);
+    }
+
+    #[test]
+    fn gate_width_error_names_the_path() {
+        let bad = DEMO_POND.replace("width_m = 0.60", "width_m = -0.4");
+        let e = load_str(&bad).unwrap_err();
+        assert_eq!(
+            e[0].to_string(),
+            "outlet.gate.width_m = -0.4: must be a finite length in (0, 1000] m"
+        );
+    }
+}

@@ -1,0 +1,453 @@
+//! Recorded rain files: CSV of interval depths or of tipping-bucket tip times, turned into a
+//! hyetograph (depth per fixed step) and split into events.
+//!
+//! Nothing is dropped silently: every row that cannot be read is a [`RowProblem`] with its
+//! line number, every gap between intervals is reported with the lines either side, and what
+//! was read before a bad row is kept. The caller decides whether problems are fatal.
+//!
+//! Times: `iso` (`2017-01-01 12:29:59`, `2010-07-17T07:30Z`, seconds optional, a trailing `Z`
+//! or no zone; all stamps of a file are read in one zone, the file's), `s` (seconds from any
+//! origin) or `min` (minutes). Each interval row's stamp is the **end** of its interval by
+//! default (`--stamp start` for the other convention).
+
+use std::fmt;
+
+/// What the rows of a rain file hold.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum RainKind {
+    /// One row per interval: its time stamp and its depth.
+    Interval,
+    /// One row per bucket tip: its time stamp (the depth column, if any, is ignored).
+    Tips,
+}
+
+/// How time stamps are written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum TimeFormat {
+    /// Calendar date and time, `YYYY-MM-DD[T| ]HH:MM[:SS][Z]`.
+    Iso,
+    /// Seconds.
+    S,
+    /// Minutes.
+    Min,
+}
+
+/// Depth unit of the depth column.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum DepthUnit {
+    /// Millimetres.
+    Mm,
+    /// Inches (25.4 mm, exact).
+    In,
+}
+
+/// Where an interval's stamp sits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum Stamp {
+    /// The stamp is the end of the interval.
+    End,
+    /// The stamp is the start of the interval.
+    Start,
+}
+
+/// How to read a rain file.
+#[derive(Debug, Clone)]
+pub struct RainFormat {
+    /// Interval depths or tip times.
+    pub kind: RainKind,
+    /// Time column: a header name or a 1-based number.
+    pub time_col: String,
+    /// Depth column: a header name or a 1-based number (interval files).
+    pub depth_col: String,
+    /// Time format.
+    pub time_format: TimeFormat,
+    /// Depth unit.
+    pub unit: DepthUnit,
+    /// Interval length, s (interval files); also the step of the hyetograph.
+    pub interval_s: u32,
+    /// Depth of one tip, mm (tip files).
+    pub bucket_mm: f64,
+    /// Stamp convention of interval rows.
+    pub stamp: Stamp,
+    /// Missing intervals count as dry (sparse files listing wet steps only); still reported.
+    pub sparse: bool,
+}
+
+/// One row that could not be read.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RowProblem {
+    /// 1-based line number in the file.
+    pub line: usize,
+    /// What is wrong.
+    pub message: String,
+}
+
+impl fmt::Display for RowProblem {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "line {}: {}", self.line, self.message)
+    }
+}
+
+/// A gap between two read rows.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Gap {
+    /// Line of the row before the gap.
+    pub after_line: usize,
+    /// Line of the row after it.
+    pub before_line: usize,
+    /// Missing time, s.
+    pub missing_s: i64,
+}
+
+impl fmt::Display for Gap {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(
+            f,
+            "lines {}-{}: {} s without data (filled as dry)",
+            self.after_line, self.before_line, self.missing_s
+        )
+    }
+}
+
+/// A read rain record.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RainRecord {
+    /// Time of the first step's start, s on the file's clock.
+    pub start_s: i64,
+    /// Step, s.
+    pub dt_s: u32,
+    /// Depth per step, mm.
+    pub rain_mm: Vec<f64>,
+    /// Rows that could not be read (kept out of the record, reported).
+    pub bad_rows: Vec<RowProblem>,
+    /// Gaps filled as dry.
+    pub gaps: Vec<Gap>,
+    /// Rows read.
+    pub rows_read: usize,
+}
+
+impl RainRecord {
+    /// Total depth, mm.
+    pub fn total_mm(&self) -> f64 {
+        self.rain_mm.iter().sum()
+    }
+}
+
+/// Days from 1970-01-01 of a proleptic Gregorian date (H. Hinnant's `days_from_civil`).
+fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
+    let y = if m <= 2 { y - 1 } else { y };
+    let era = y.div_euclid(400);
+    let yoe = y - era * 400;
+    let mp = (m + 9) % 12;
+    let doy = (153 * mp + 2) / 5 + d - 1;
+    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    era * 146_097 + doe - 719_468
+}
+
+/// Seconds since 1970-01-01T00:00 of an ISO-like stamp.
+pub fn parse_iso(s: &str) -> Result<i64, String> {
+    let s = s.trim().trim_end_matches('Z');
+    let (date, time) = s
+        .split_once(['T', ' '])
+        .ok_or_else(|| format!("time {s:?}: expected YYYY-MM-DD HH:MM[:SS]"))?;
+    let num = |p: &str, what: &str| {
+        p.parse::<i64>()
+            .map_err(|_| format!("time {s:?}: {what} {p:?} is not a number"))
+    };
+    let d: Vec<&str> = date.split('-').collect();
+    let t: Vec<&str> = time.split(':').collect();
+    if d.len() != 3 || !(2..=3).contains(&t.len()) {
+        return Err(format!("time {s:?}: expected YYYY-MM-DD HH:MM[:SS]"));
+    }
+    let (y, mo, da) = (num(d[0], "year")?, num(d[1], "month")?, num(d[2], "day")?);
+    let (h, mi) = (num(t[0], "hour")?, num(t[1], "minute")?);
+    let se = match t.get(2) {
+        Some(x) => num(x, "second")?,
+        None => 0,
+    };
+    if !(1..=12).contains(&mo) || !(1..=31).contains(&da) || h > 23 || mi > 59 || se > 60 {
+        return Err(format!("time {s:?}: a field is out of range"));
+    }
+    Ok(days_from_civil(y, mo, da) * 86_400 + h * 3600 + mi * 60 + se)
+}
+
+fn parse_time(s: &str, f: TimeFormat) -> Result<i64, String> {
+    match f {
+        TimeFormat::Iso => parse_iso(s),
+        TimeFormat::S | TimeFormat::Min => {
+            let v: f64 = s
+                .trim()
+                .parse()
+                .map_err(|_| format!("time {s:?} is not a number"))?;
+            let v = if f == TimeFormat::Min { v * 60.0 } else { v };
+            if v.is_finite() && v.abs() < 1e12 {
+                Ok(v.round() as i64)
+            } else {
+                Err(format!("time {s:?} is out of range"))
+            }
+        }
+    }
+}
+
+fn column(header: Option<&[String]>, spec: &str, what: &str) -> Result<usize, String> {
+    if let Ok(n) = spec.parse::<usize>() {
+        return n
+            .checked_sub(1)
+            .ok_or_else(|| format!("--{what}-col {spec}: columns count from 1"));
+    }
+    let h = header.ok_or_else(|| format!("--{what}-col {spec:?}: the file has no header line"))?;
+    h.iter()
+        .position(|c| c.trim() == spec)
+        .ok_or_else(|| format!("--{what}-col {spec:?}: no such column; the header has {h:?}"))
+}
+
+/// Reads a rain file's text. An error only when nothing can be read at all (no such column,
+/// no data rows); row-level problems are in the record.
+pub fn parse(text: &str, fmt: &RainFormat) -> Result<RainRecord, String> {
+    if fmt.interval_s == 0 {
+        return Err("--interval-s = 0: must be > 0".into());
+    }
+    let mut lines = text
+        .lines()
+        .enumerate()
+        .map(|(i, l)| (i + 1, l))
+        .filter(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
+        .peekable();
+    let first_is_header = match fmt.time_col.parse::<usize>() {
+        Err(_) => true,
+        Ok(n) => lines.peek().is_some_and(|(_, l)| {
+            let cell = l.split(',').nth(n.saturating_sub(1)).unwrap_or("");
+            parse_time(cell, fmt.time_format).is_err()
+        }),
+    };
+    let header: Option<Vec<String>> = if first_is_header {
+        lines
+            .next()
+            .map(|(_, l)| l.split(',').map(|c| c.trim().to_string()).collect())
+    } else {
+        None
+    };
+    let tcol = column(header.as_deref(), &fmt.time_col, "time")?;
+    let dcol = match fmt.kind {
+        RainKind::Interval => Some(column(header.as_deref(), &fmt.depth_col, "depth")?),
+        RainKind::Tips => None,
+    };
+    let to_mm = match fmt.unit {
+        DepthUnit::Mm => 1.0,
+        DepthUnit::In => 25.4,
+    };
+    // (line, interval start s, depth mm)
+    let mut rows: Vec<(usize, i64, f64)> = Vec::new();
+    let mut bad = Vec::new();
+    for (line, l) in lines {
+        let cells: Vec<&str> = l.split(',').collect();
+        let Some(tcell) = cells.get(tcol) else {
+            bad.push(RowProblem {
+                line,
+                message: format!("no column {} (the row has {})", tcol + 1, cells.len()),
+            });
+            continue;
+        };
+        let t = match parse_time(tcell, fmt.time_format) {
+            Ok(t) => t,
+            Err(e) => {
+                bad.push(RowProblem { line, message: e });
+                continue;
+            }
+        };
+        let depth = match dcol {
+            None => fmt.bucket_mm,
+            Some(c) => match cells.get(c).map(|s| s.trim().parse::<f64>()) {
+                Some(Ok(d)) if d.is_finite() && d >= 0.0 => d * to_mm,
+                Some(Ok(d)) => {
+                    bad.push(RowProblem {
+                        line,
+                        message: format!("depth {d}: must be a finite number >= 0"),
+                    });
+                    continue;
+                }
+                Some(Err(_)) => {
+                    bad.push(RowProblem {
+                        line,
+                        message: format!(
+                            "depth {:?} is not a number",
+                            cells.get(c).copied().unwrap_or("")
+                        ),
+                    });
+                    continue;
+                }
+                None => {
+                    bad.push(RowProblem {
+                        line,
+                        message: format!("no column {} (the row has {})", c + 1, cells.len()),
+                    });
+                    continue;
+                }
+            },
+        };
+        let start = match (fmt.kind, fmt.stamp) {
+            (RainKind::Interval, Stamp::End) => t - i64::from(fmt.interval_s),
+            _ => t,
+        };
+        if let Some(&(pl, ps, _)) = rows.last()
+            && start < ps
+        {
+            bad.push(RowProblem {
+                line,
+                message: format!("time goes backwards (before line {pl})"),
+            });
+            continue;
+        }
+        rows.push((line, start, depth));
+    }
+    let Some(&(_, t0, _)) = rows.first() else {
+        return Err(format!(
+            "no readable data rows ({} bad rows{})",
+            bad.len(),
+            bad.first()
+                .map_or(String::new(), |b| format!("; first: {b}"))
+        ));
+    };
+    let dt = i64::from(fmt.interval_s);
+    let t0 = t0.div_euclid(dt) * dt;
+    let mut rain: Vec<f64> = Vec::new();
+    let mut gaps = Vec::new();
+    let mut prev: Option<(usize, i64)> = None;
+    for &(line, start, depth) in &rows {
+        let k = ((start - t0).div_euclid(dt)) as usize;
+        if rain.len() <= k {
+            rain.resize(k + 1, 0.0);
+        }
+        rain[k] += depth;
+        if fmt.kind == RainKind::Interval
+            && let Some((pl, ps)) = prev
+        {
+            let missing = start - ps - dt;
+            if missing > 0 && !fmt.sparse {
+                gaps.push(Gap {
+                    after_line: pl,
+                    before_line: line,
+                    missing_s: missing,
+                });
+            } else if missing < 0 && start != ps {
+                bad.push(RowProblem {
+                    line,
+                    message: format!(
+                        "interval overlaps the one on line {pl} ({} s apart, interval {dt} s)",
+                        start - ps
+                    ),
+                });
+            }
+        }
+        prev = Some((line, start));
+    }
+    Ok(RainRecord {
+        start_s: t0,
+        dt_s: fmt.interval_s,
+        rain_mm: rain,
+        bad_rows: bad,
+        gaps,
+        rows_read: rows.len(),
+    })
+}
+
+/// One rain event: a stretch of steps between dry spells of at least the inter-event time.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Event {
+    /// Index of the first wet step.
+    pub first_step: usize,
+    /// Index after the last wet step.
+    pub end_step: usize,
+    /// Total depth, mm.
+    pub depth_mm: f64,
+}
+
+/// Splits a record into events separated by at least `inter_event_s` without rain.
+pub fn split_events(rec: &RainRecord, inter_event_s: u32) -> Vec<Event> {
+    let dt = rec.dt_s.max(1) as usize;
+    let dry_steps = (inter_event_s as usize).div_ceil(dt).max(1);
+    let mut out: Vec<Event> = Vec::new();
+    let mut last_wet: Option<usize> = None;
+    for (k, &d) in rec.rain_mm.iter().enumerate() {
+        if d <= 0.0 {
+            continue;
+        }
+        match (out.last_mut(), last_wet) {
+            (Some(e), Some(lw)) if k - lw <= dry_steps => {
+                e.end_step = k + 1;
+                e.depth_mm += d;
+            }
+            _ => out.push(Event {
+                first_step: k,
+                end_step: k + 1,
+                depth_mm: d,
+            }),
+        }
+        last_wet = Some(k);
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn fmt() -> RainFormat {
+        RainFormat {
+            kind: RainKind::Interval,
+            time_col: "t".into(),
+            depth_col: "mm".into(),
+            time_format: TimeFormat::Iso,
+            unit: DepthUnit::Mm,
+            interval_s: 300,
+            bucket_mm: 0.2,
+            stamp: Stamp::Start,
+            sparse: false,
+        }
+    }
+
+    /// 2000-03-01T00:00:10Z is 951 868 810 s after the Unix epoch (Python 3
+    /// `datetime(2000, 3, 1, 0, 0, 10, tzinfo=timezone.utc).timestamp()`; by hand: 30 years
+    /// with 7 leap days, then January and February 2000, 31 + 29 days).
+    #[test]
+    fn iso_dates_count_days_correctly() {
+        assert_eq!(parse_iso("1970-01-01 00:00").unwrap(), 0);
+        assert_eq!(parse_iso("2000-03-01T00:00:10Z").unwrap(), 951_868_810);
+        assert!(parse_iso("2000-13-01 00:00").is_err());
+    }
+
+    #[test]
+    fn bad_rows_and_gaps_are_reported_and_nothing_read_is_lost() {
+        let text = "t,mm\n2020-01-01 00:00,1.0\n2020-01-01 00:05,x\n2020-01-01 00:10,2.0\n\
+                    2020-01-01 00:25,0.5\n2020-01-01 00:30,-1\n";
+        let r = parse(text, &fmt()).unwrap();
+        assert_eq!(r.rows_read, 3);
+        assert_eq!(r.total_mm(), 3.5);
+        assert_eq!(r.bad_rows.len(), 2);
+        assert_eq!(r.bad_rows[0].line, 3);
+        assert!(r.bad_rows[0].to_string().contains("\"x\""));
+        assert_eq!(r.bad_rows[1].line, 6);
+        // The bad row leaves a gap of its own (lines 2-4), then 00:10 to 00:25 misses two.
+        assert_eq!(r.gaps.len(), 2);
+        assert_eq!((r.gaps[0].after_line, r.gaps[0].before_line), (2, 4));
+        assert_eq!(r.gaps[0].missing_s, 300);
+        assert_eq!((r.gaps[1].after_line, r.gaps[1].before_line), (4, 5));
+        assert_eq!(r.gaps[1].missing_s, 600);
+    }
+
+    #[test]
+    fn events_split_on_dry_time() {
+        let rec = RainRecord {
+            start_s: 0,
+            dt_s: 300,
+            rain_mm: vec![1.0, 0.0, 1.0, 0.0, 0.0, 0.0, 0.0, 2.0],
+            bad_rows: vec![],
+            gaps: vec![],
+            rows_read: 8,
+        };
+        let e = split_events(&rec, 900);
+        assert_eq!(e.len(), 2);
+        assert_eq!(e[0].depth_mm, 2.0);
+        assert_eq!((e[1].first_step, e[1].end_step), (7, 8));
+    }
+}

@@ -1,0 +1,383 @@
+//! End-to-end checks of the `holdback` binary on real files in a temp dir, plus the pond-file
+//! round trip through the packed device form.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+use holdback_core::packed::{MAX_PACKED_LEN, pack, unpack, unpack_spec};
+use holdback_sim::pondfile::{self, DEMO_POND};
+use holdback_sim::storms::{self, Shape};
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_holdback"))
+}
+
+fn run(args: &[&str]) -> Output {
+    bin().args(args).output().expect("the binary runs")
+}
+
+fn text(b: &[u8]) -> String {
+    String::from_utf8_lossy(b).into_owned()
+}
+
+fn repo() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
+}
+
+fn demo_file(dir: &Path) -> PathBuf {
+    let p = dir.join("pond.toml");
+    std::fs::write(&p, DEMO_POND).unwrap();
+    p
+}
+
+/// Every command prints the caution line on stderr.
+#[test]
+fn demo_prints_rating_and_routed_storm_and_the_caution() {
+    let o = run(&["demo"]);
+    let out = text(&o.stdout);
+    let err = text(&o.stderr);
+    assert!(
+        err.contains("CAUTION") && err.contains("qualified engineer"),
+        "{err}"
+    );
+    assert!(out.contains("stage_m,storage_m3,q_open_0.000_m3s"), "{out}");
+    assert!(
+        out.contains("t_min,rain_mm,inflow_m3s,stage_m,release_m3s"),
+        "{out}"
+    );
+    assert!(out.contains("bound"), "{out}");
+    // The demo's first policy is judged: 0 pass or 1 a criterion failed, never 2.
+    assert!(matches!(o.status.code(), Some(0 | 1)), "{:?}", o.status);
+}
+
+#[test]
+fn check_accepts_the_demo_and_names_the_path_of_a_bad_value() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let o = run(&["check", p.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    assert!(text(&o.stdout).contains(": ok"));
+
+    let bad = dir.path().join("bad.toml");
+    std::fs::write(&bad, DEMO_POND.replace("width_m = 0.60", "width_m = -0.4")).unwrap();
+    let o = run(&["check", bad.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = text(&o.stderr);
+    assert!(
+        err.contains("outlet.gate.width_m = -0.4: must be a finite length in (0, 1000] m"),
+        "{err}"
+    );
+
+    let bad = dir.path().join("bad2.toml");
+    std::fs::write(
+        &bad,
+        DEMO_POND.replace("normal_m = 41.00", "normal_m = 43.40"),
+    )
+    .unwrap();
+    let o = run(&["check", bad.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        text(&o.stderr).contains("levels.normal_m = 43.4: must be below crest_m - freeboard_m")
+    );
+
+    let o = run(&["check", dir.path().join("missing.toml").to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(text(&o.stderr).contains("cannot read pond file"));
+}
+
+/// A permit above the old outlet's capacity, and a drawdown target shorter than a full-open
+/// drain, are legal but warned about.
+#[test]
+fn suspicious_values_are_warnings() {
+    let t = DEMO_POND
+        .replace("release_m3s = 0.25", "release_m3s = 2.5")
+        .replace("drawdown_target_s = 172800", "drawdown_target_s = 3600");
+    let p = pondfile::load_str(&t).unwrap();
+    let w = p.warnings.join("\n");
+    assert!(
+        w.contains("permit.release_m3s = 2.5: above what the existing"),
+        "{w}"
+    );
+    assert!(
+        w.contains("control.drawdown_target_s = 3600: unreachable"),
+        "{w}"
+    );
+}
+
+#[test]
+fn rating_rejects_an_opening_beyond_the_gate() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let o = run(&["rating", p.to_str().unwrap(), "--opening", "0.3"]);
+    assert_eq!(o.status.code(), Some(0));
+    assert!(text(&o.stdout).starts_with("stage_m,storage_m3,q_open_0.300_m3s\n"));
+    let o = run(&["rating", p.to_str().unwrap(), "--opening", "2"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(text(&o.stderr).contains("--opening = 2: must be in [0, 0.6]"));
+}
+
+/// TOML → PondConfig → pack → unpack → the same config and, re-packed, the same bytes.
+#[test]
+fn pond_file_round_trips_through_the_packed_form() {
+    let pond = pondfile::load_str(DEMO_POND).unwrap();
+    let mut a = vec![0u8; MAX_PACKED_LEN];
+    let n = pack(&pond.spec, &mut a).unwrap();
+    let cfg = unpack(&a[..n]).unwrap();
+    assert_eq!(cfg, pond.config);
+    let spec = unpack_spec(&a[..n]).unwrap();
+    let mut b = vec![0u8; MAX_PACKED_LEN];
+    let m = pack(&spec, &mut b).unwrap();
+    assert_eq!(a[..n], b[..m]);
+
+    // The same through the CLI, on disk.
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let bin_path = dir.path().join("pond.bin");
+    let o = run(&[
+        "pack",
+        p.to_str().unwrap(),
+        "-o",
+        bin_path.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    assert_eq!(std::fs::read(&bin_path).unwrap(), a[..n]);
+    let o = run(&["unpack", bin_path.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(0));
+    assert!(text(&o.stdout).contains("\"permit_m3s\": 0.25"));
+    let mut bytes = std::fs::read(&bin_path).unwrap();
+    bytes[10] ^= 0xff;
+    std::fs::write(&bin_path, &bytes).unwrap();
+    let o = run(&["unpack", bin_path.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(text(&o.stderr).contains("CRC"));
+}
+
+/// The storm totals equal the IDF depth D = i(Td)·Td, with i from the demo's Sherman curve
+/// i = a/(t + b)^c (10-year: a = 1350, b = 10, c = 0.8; the published Sherman form) evaluated
+/// here in f64. Each pattern is defined to hold exactly D (uniform block; alternating block,
+/// Chow, Maidment & Mays 1988 §14.4; Chicago, Keifer & Chu 1957).
+#[test]
+fn design_storm_totals_match_the_idf_depth() {
+    let pond = pondfile::load_str(DEMO_POND).unwrap();
+    for d_min in [30u32, 60, 180] {
+        let want = 1350.0 / (d_min as f64 + 10.0).powf(0.8) * d_min as f64 / 60.0;
+        for shape in [Shape::Uniform, Shape::AlternatingBlock, Shape::Chicago] {
+            let s = storms::design(&pond, 10.0, d_min, 300, shape, 0.5).unwrap();
+            let got = s.total_mm();
+            assert!(
+                (got / want - 1.0).abs() < 1e-4,
+                "{shape:?} {d_min} min: {got} mm, IDF {want} mm"
+            );
+        }
+    }
+}
+
+#[test]
+fn design_storm_command_prints_csv() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let o = run(&[
+        "design-storm",
+        p.to_str().unwrap(),
+        "--return-period",
+        "10",
+        "--duration-min",
+        "60",
+        "--shape",
+        "chicago",
+    ]);
+    assert_eq!(o.status.code(), Some(0));
+    let out = text(&o.stdout);
+    assert!(out.starts_with("t_s,rain_mm,intensity_mm_h\n"));
+    assert_eq!(out.lines().count(), 1 + 12);
+}
+
+/// The recorded Singapore excerpt (tests/data/rain, see its README) holds three storms of
+/// more than 50 mm in three spans months apart; split at 1 h of dry time the first span also
+/// has a 0.4 mm shower (rows 12-13 of its 5-min steps) before its storm: four events. The
+/// months between the spans are reported as gaps, with their line numbers.
+#[test]
+fn recorded_rain_is_split_into_events_and_replayed() {
+    let rain = repo().join("tests/data/rain/sg_s117_storms.csv");
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let out = dir.path().join("out");
+    let o = run(&[
+        "replay",
+        p.to_str().unwrap(),
+        "--rain",
+        rain.to_str().unwrap(),
+        "--time-col",
+        "timestamp_sgt",
+        "--depth-col",
+        "value",
+        "--interval-s",
+        "300",
+        "--inter-event-s",
+        "3600",
+        "--event",
+        "2",
+        "--policy",
+        "threshold,bound",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let err = text(&o.stderr);
+    assert!(matches!(o.status.code(), Some(0 | 1)), "{err}");
+    assert!(
+        err.contains("event 4:") && !err.contains("event 5:"),
+        "{err}"
+    );
+    assert!(
+        err.contains("event 2: steps 47..82 (2.9 h), 71.40 mm"),
+        "{err}"
+    );
+    assert!(
+        err.contains("lines 95-96:") && err.contains("lines 144-145:"),
+        "{err}"
+    );
+    for f in [
+        "series-threshold.csv",
+        "summary-threshold.json",
+        "summary-bound.json",
+        "plots.svg",
+        "plots.png",
+        "report.html",
+    ] {
+        assert!(out.join(f).exists(), "{f} missing");
+    }
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(html.contains("<svg") && html.contains("qualified engineer"));
+    let csv = std::fs::read_to_string(out.join("series-threshold.csv")).unwrap();
+    assert!(csv.starts_with("t_s,rain_mm,inflow_m3s,stage_m,stage_read_m,storage_m3"));
+}
+
+/// Bad rows and gaps are reported with line numbers; --strict makes them fatal (exit 2).
+#[test]
+fn bad_rain_rows_are_reported_with_line_numbers() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let rain = dir.path().join("rain.csv");
+    std::fs::write(
+        &rain,
+        "time,mm\n2024-05-01 10:05,1.0\n2024-05-01 10:10,oops\n2024-05-01 10:15,2.0\n\
+         2024-05-01 10:30,1.5\n",
+    )
+    .unwrap();
+    let args = |strict: bool| {
+        let mut a = vec![
+            "replay".to_string(),
+            p.to_str().unwrap().into(),
+            "--rain".into(),
+            rain.to_str().unwrap().into(),
+            "--time-col".into(),
+            "time".into(),
+            "--depth-col".into(),
+            "mm".into(),
+            "--policy".into(),
+            "threshold".into(),
+            "--tail-h".into(),
+            "2".into(),
+        ];
+        if strict {
+            a.push("--strict".into());
+        }
+        a
+    };
+    let o = bin().args(args(false)).output().unwrap();
+    let err = text(&o.stderr);
+    assert!(
+        err.contains("line 3: depth \"oops\" is not a number"),
+        "{err}"
+    );
+    assert!(err.contains("lines 4-5: 600 s without data"), "{err}");
+    assert!(err.contains("3 rows read, 4.50 mm"), "{err}");
+    let o = bin().args(args(true)).output().unwrap();
+    assert_eq!(o.status.code(), Some(2));
+}
+
+#[test]
+fn faults_parse_and_bad_ones_are_input_errors() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let base = [
+        "replay",
+        p.to_str().unwrap(),
+        "--design",
+        "10:60:chicago",
+        "--policy",
+        "threshold",
+        "--tail-h",
+        "24",
+    ];
+    let mut a = base.to_vec();
+    a.extend([
+        "--fault",
+        "stage:dropout@1200-2400",
+        "--fault",
+        "gate:stall@3000",
+    ]);
+    let o = run(&a);
+    assert!(
+        matches!(o.status.code(), Some(0 | 1)),
+        "{}",
+        text(&o.stderr)
+    );
+    let mut a = base.to_vec();
+    a.extend(["--fault", "stage:melt@10"]);
+    let o = run(&a);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(text(&o.stderr).contains("--fault \"stage:melt@10\""));
+}
+
+/// The demo's summaries are deterministic (seeded noise, integer clock) and equal the
+/// committed golden files. Regenerate with HOLDBACK_BLESS=1 after a deliberate change.
+#[test]
+fn demo_summaries_match_the_golden_files() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = run(&["demo", "--out", dir.path().to_str().unwrap()]);
+    assert!(
+        matches!(o.status.code(), Some(0 | 1)),
+        "{}",
+        text(&o.stderr)
+    );
+    let golden = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/golden");
+    for policy in ["threshold", "fixed", "bound"] {
+        let name = format!("summary-{policy}.json");
+        let got = std::fs::read_to_string(dir.path().join(&name)).unwrap();
+        let path = golden.join(format!("demo-{name}"));
+        if std::env::var_os("HOLDBACK_BLESS").is_some() {
+            std::fs::write(&path, &got).unwrap();
+        }
+        let want = std::fs::read_to_string(&path).unwrap();
+        assert_eq!(got, want, "{name} differs from {}", path.display());
+    }
+}
+
+#[test]
+fn batch_runs_in_parallel_and_fails_when_a_run_fails() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let csv = dir.path().join("batch.csv");
+    let o = run(&[
+        "batch",
+        p.to_str().unwrap(),
+        "--return-periods",
+        "2,100",
+        "--durations-min",
+        "60",
+        "--policy",
+        "bound",
+        "--tail-h",
+        "24",
+        "--csv",
+        csv.to_str().unwrap(),
+    ]);
+    let out = text(&o.stdout);
+    assert_eq!(out.lines().count(), 3, "{out}");
+    let c = std::fs::read_to_string(&csv).unwrap();
+    assert_eq!(c.lines().count(), 3);
+    // The 100-year storm overtops the freeboard of the demo pond even at the bound.
+    let any_fail = c.lines().skip(1).any(|l| l.ends_with(",false"));
+    assert_eq!(o.status.code(), Some(if any_fail { 1 } else { 0 }));
+}
