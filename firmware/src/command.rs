@@ -435,7 +435,8 @@ impl core::error::Error for Reject {}
 pub struct Rejected {
     /// Why.
     pub reason: Reject,
-    /// The frame's counter (authenticated only if [`Rejected::counter_used`]; 0 if too short).
+    /// The frame's counter: authenticated for `Replay` and whenever
+    /// [`Rejected::counter_used`], otherwise as claimed (0 if the frame was too short).
     pub counter: u32,
     /// The frame's kind byte (0 if too short).
     pub kind: u8,
