@@ -25,7 +25,7 @@
 //!   only ever added at the end; existing variants never change their fields. A change that
 //!   would alter an existing layout bumps [`FORMAT_VERSION`] instead.
 //! - The small enums ([`ModeCode`], [`FaultSource`], [`FaultKind`], [`ExceedReason`],
-//!   [`AlarmKind`]) travel as their explicit `u8` code, not as a serde variant index, so the
+//!   [`AlarmKind`], [`CommandOutcome`]) travel as their explicit `u8` code, not as a serde variant index, so the
 //!   code printed in a log and the code on the wire are the same number. An unknown code is a
 //!   decode error, never a guess.
 //! - [`decode`] never panics on any input: every failure is a [`DecodeError`].
@@ -227,6 +227,40 @@ code_enum! {
     }
 }
 
+code_enum! {
+    /// What became of a remote command frame: accepted, or the one reason it was refused.
+    /// The firmware's command verifier checks in code order (1 to 5 before the command's
+    /// authenticity and freshness are known, 6 and up after) and reports the first failure.
+    /// [`Accepted`](Self::Accepted) and every code from [`UnknownKind`](Self::UnknownKind) up
+    /// mean the frame was authentic and fresh, so its counter was used up.
+    CommandOutcome {
+        /// Authentic, fresh and in range: handed to the controller.
+        Accepted = 0,
+        /// Shorter or longer than any frame can be.
+        Malformed = 1,
+        /// A frame version this device does not know.
+        UnknownVersion = 2,
+        /// Addressed to another device.
+        WrongDevice = 3,
+        /// The authentication tag does not match (forged or corrupted).
+        BadTag = 4,
+        /// Authentic, but its counter is not above the last accepted one.
+        Replay = 5,
+        /// Authentic, but of a kind this firmware does not know.
+        UnknownKind = 6,
+        /// Authentic, but its arguments are not the length its kind needs.
+        BadLength = 7,
+        /// Manual opening negative, not finite or above the gate's maximum.
+        BadOpening = 8,
+        /// Manual duration zero or above the manual limit.
+        BadDuration = 9,
+        /// A mode that may not be commanded remotely.
+        ModeNotAllowed = 10,
+        /// A configuration chunk that is empty, too long or outside the blob.
+        BadChunk = 11,
+    }
+}
+
 /// Sensor health flags carried by a periodic sample, one bit each; a set bit means
 /// "this input is in fault". Unknown bits are kept as they are (bits are only appended).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, Serialize, Deserialize)]
@@ -323,6 +357,17 @@ pub enum EventBody {
         command: u8,
         /// The value refused.
         value: f32,
+    },
+    /// A remote command frame was received and accepted or refused.
+    RemoteCommand {
+        /// The frame's counter. Authenticated only when `outcome` is
+        /// [`CommandOutcome::Accepted`] or from [`CommandOutcome::Replay`] on; otherwise what
+        /// the unauthenticated frame claimed (0 when too short to say).
+        counter: u32,
+        /// The frame's command-kind byte (firmware-defined; 0 when the frame was too short).
+        kind: u8,
+        /// Accepted, or why not.
+        outcome: CommandOutcome,
     },
 }
 
@@ -539,7 +584,7 @@ pub fn decode_exact(bytes: &[u8]) -> Result<EventRecord, DecodeError> {
 mod tests {
     use super::*;
 
-    fn all_bodies() -> [EventBody; 7] {
+    fn all_bodies() -> [EventBody; 9] {
         [
             EventBody::ModeChange {
                 from: ModeCode::Standby,
@@ -574,6 +619,15 @@ mod tests {
                 opening: 0.75,
                 mode: ModeCode::Drawdown,
                 health: HealthFlags(HealthFlags::RAIN),
+            },
+            EventBody::CommandRejected {
+                command: 1,
+                value: 0.0,
+            },
+            EventBody::RemoteCommand {
+                counter: 70_000,
+                kind: 1,
+                outcome: CommandOutcome::Replay,
             },
         ]
     }
@@ -639,6 +693,30 @@ mod tests {
         assert_eq!(buf[1] as usize, payload.len());
     }
 
+    /// Golden bytes of the appended remote-command record (postcard 1.x wire spec: varint
+    /// u32, varint variant index, `u8` raw), worked out by hand.
+    #[test]
+    fn golden_bytes_remote_command() {
+        let rec = EventRecord {
+            seq: 2,
+            time_s: 200,
+            body: EventBody::RemoteCommand {
+                counter: 70_000,
+                kind: 4,
+                outcome: CommandOutcome::BadTag,
+            },
+        };
+        let mut buf = [0u8; MAX_FRAME_LEN];
+        let n = encode(&rec, &mut buf).unwrap();
+        // seq 2 = [0x02]; time 200 = varint [0xC8, 0x01]; variant 8 = [0x08];
+        // counter 70 000 = 0x11170 = varint [0xF0, 0xA2, 0x04]; kind 4; outcome BadTag = 4.
+        let payload = [0x02, 0xC8, 0x01, 0x08, 0xF0, 0xA2, 0x04, 0x04, 0x04];
+        assert_eq!(&buf[2..n - 4], &payload);
+        assert_eq!(decode_exact(&buf[..n]), Ok(rec));
+        assert_eq!(CommandOutcome::BadChunk.code(), 11);
+        assert_eq!(CommandOutcome::from_code(12), None);
+    }
+
     #[test]
     fn every_variant_round_trips_and_fits() {
         for (i, body) in all_bodies().into_iter().enumerate() {
@@ -660,7 +738,7 @@ mod tests {
     #[test]
     fn variant_indices_are_append_only() {
         // The postcard variant index is the byte after seq and time (both one byte here).
-        let expected = [0u8, 1, 2, 3, 4, 5, 6];
+        let expected = [0u8, 1, 2, 3, 4, 5, 6, 7, 8];
         for (body, idx) in all_bodies().into_iter().zip(expected) {
             let mut buf = [0u8; MAX_FRAME_LEN];
             encode(

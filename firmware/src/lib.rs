@@ -23,8 +23,10 @@
 #![warn(missing_docs)]
 
 pub mod app;
+pub mod command;
 pub mod drivers;
 pub mod eventlog;
+pub mod telemetry;
 pub mod virtual_board;
 
 pub use app::{App, AppOptions, Board, GateReading, StepReport};
