@@ -39,6 +39,7 @@ use holdback_core::event::{EventBody, FaultKind, FaultSource, HealthFlags, ModeC
 use holdback_core::packed::{self, PackError};
 
 use crate::StageInput;
+use crate::command::{Limits as CommandLimits, Verifier, control_command};
 use crate::eventlog::{EventLog, SamplePolicy};
 
 /// Alarm bit raised when the packed configuration cannot be used (above the controller's
@@ -242,6 +243,35 @@ impl<'c, B: Board> App<'c, B> {
             .is_some_and(|l| l.append(now_s, body).is_ok());
         if !ok {
             self.log_failures = self.log_failures.saturating_add(1);
+        }
+    }
+
+    /// Checks a remote command frame with `verifier` and logs the outcome (accepted or the
+    /// reason it was refused) before anything acts on it. Returns the controller command to
+    /// pass to the next [`App::step`], or `None` when the frame was refused, when it is a kind
+    /// the main loop handles itself (`SetMode`, `UpdateConfig`: staged, not applied here), or
+    /// when the device is running unconfigured (no limits to check a command against).
+    ///
+    /// Overtopping protection cannot be commanded away: no frame kind reaches it, and the
+    /// controller lets Surcharge override a manual opening.
+    pub fn remote_frame(
+        &mut self,
+        verifier: &mut Verifier,
+        frame: &[u8],
+        max_config_len: u32,
+    ) -> Option<Command> {
+        let now = self.board.now_s();
+        let cfg = self.run.as_ref().map(|r| r.cfg)?;
+        let limits = CommandLimits::from_config(cfg, max_config_len).ok()?;
+        match verifier.verify(frame, &limits) {
+            Ok(accepted) => {
+                self.append(now, accepted.event_body());
+                control_command(&accepted.command)
+            }
+            Err(rejected) => {
+                self.append(now, rejected.event_body());
+                None
+            }
         }
     }
 
