@@ -347,10 +347,10 @@ fn remote_commands_through_the_main_loop_are_authenticated_logged_and_replay_pro
     app.log_mut()
         .unwrap()
         .for_each(|r| {
-            if let Ok(r) = r {
-                if let EventBody::RemoteCommand { outcome, .. } = r.body {
-                    outcomes.push(outcome);
-                }
+            if let Ok(r) = r
+                && let EventBody::RemoteCommand { outcome, .. } = r.body
+            {
+                outcomes.push(outcome);
             }
         })
         .unwrap();
