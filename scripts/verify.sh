@@ -66,3 +66,18 @@ stack_bytes=$(
 rm -rf "$probe_dir"
 FLASH_BUDGET_BYTES=$((96 * 1024)) RAM_BUDGET_BYTES=$((40 * 1024)) STACK_RESERVE_BYTES=$stack_bytes \
     bash scripts/size-report.sh "$board_elf"
+
+step "short fuzz runs of every decoder and parser of outside input (cargo fuzz, no sanitizer)"
+if ! cargo fuzz --version >/dev/null 2>&1; then
+    echo "cargo-fuzz is missing: cargo install cargo-fuzz --locked (.ci/run does this)" >&2
+    exit 1
+fi
+fuzz_s=${HOLDBACK_FUZZ_SECONDS:-15}
+for spec in core:decode_event core:unpack_config firmware:verify_command firmware:read_dump \
+    host-sim:pond_file host-sim:rain_file; do
+    dir=${spec%%:*}
+    target=${spec#*:}
+    echo "-- $dir/fuzz $target (${fuzz_s} s)"
+    (cd "$dir/fuzz" && cargo fuzz run --sanitizer none "$target" -- \
+        -max_total_time="$fuzz_s" -print_final_stats=0 2>&1 | tail -n 1)
+done
