@@ -40,6 +40,7 @@ pub mod forecast;
 pub mod hydraulics;
 pub mod math;
 pub mod packed;
+pub mod plant;
 pub mod rain;
 pub mod routing;
 pub mod runoff;
