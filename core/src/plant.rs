@@ -152,7 +152,7 @@ impl Plant {
     ) -> Result<Self, PlantError> {
         validate::finite("start_stage_m", start_stage_m)?;
         validate::finite("start_opening_m", start_opening_m)?;
-        if !(gate_speed_m_s > 0.0) {
+        if gate_speed_m_s.is_nan() || gate_speed_m_s <= 0.0 {
             return Err(PlantError::Invalid(Invalid {
                 field: "gate_speed_m_s",
                 value: gate_speed_m_s,
@@ -166,7 +166,9 @@ impl Plant {
             runoff: TimeAreaInflow::new(cfg.catchment().clone()),
             storage_m3,
             stage_m: pond.stage_m(storage_m3),
-            outflow_m3s: cfg.outlet().discharge_m3s(pond.stage_m(storage_m3), opening_m),
+            outflow_m3s: cfg
+                .outlet()
+                .discharge_m3s(pond.stage_m(storage_m3), opening_m),
             inflow_m3s: 0.0,
             rain_acc_mm: 0.0,
             in_runoff_step_s: 0,
@@ -302,7 +304,12 @@ mod tests {
     /// orifice, a 0.6 m gate, 24 ha-ish of catchment.
     fn demo_like_config() -> PondConfig {
         let mut rows = Vec::new();
-        for r in [(41.0, 1500.0), (42.0, 2750.0), (43.0, 4200.0), (44.0, 5850.0)] {
+        for r in [
+            (41.0, 1500.0),
+            (42.0, 2750.0),
+            (43.0, 4200.0),
+            (44.0, 5850.0),
+        ] {
             rows.push(r).unwrap();
         }
         let mut fixed = Vec::new();
@@ -405,10 +412,16 @@ mod tests {
             v_out += f64::from(r.released_m3);
         }
         let ds = f64::from(p.storage_m3() - s0);
-        assert!(((v_in - v_out) - ds).abs() < 1e-3 * v_in, "{v_in} {v_out} {ds}");
+        assert!(
+            ((v_in - v_out) - ds).abs() < 1e-3 * v_in,
+            "{v_in} {v_out} {ds}"
+        );
         // Rain volume: depth × effective area (time–area definition, all delivered by now).
         let rain_m3 = 360.0 * 0.2e-3 * f64::from(cfg.catchment().effective_area_m2());
-        assert!((v_in - rain_m3).abs() < 1e-3 * rain_m3, "{v_in} vs {rain_m3}");
+        assert!(
+            (v_in - rain_m3).abs() < 1e-3 * rain_m3,
+            "{v_in} vs {rain_m3}"
+        );
     }
 
     /// The gate moves at its speed toward the command and no further; NaN commands are ignored.

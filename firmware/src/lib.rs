@@ -1,7 +1,8 @@
 //! # holdback-firmware
 //!
 //! The device side of holdback. Drivers over embedded-hal 1.0, the event log, telemetry and
-//! the main loop generic over a [`Board`]. All engineering is in `holdback-core`; this crate
+//! the main loop ([`app`]) generic over a [`Board`], and a [`virtual_board`] backed by the
+//! core's plant model for emulated and host closed-loop runs. All engineering is in `holdback-core`; this crate
 //! only adapts it to pins, buses, flash and clocks.
 //!
 //! Same promises as the core: `#![no_std]`, no heap, no panics on any input.
@@ -21,8 +22,12 @@
 )]
 #![warn(missing_docs)]
 
+pub mod app;
 pub mod drivers;
 pub mod eventlog;
+pub mod virtual_board;
+
+pub use app::{App, AppOptions, Board, GateReading, StepReport};
 
 /// A stage reading from an analog front end, before any filtering.
 ///
@@ -33,18 +38,4 @@ pub trait StageInput {
     type Error: core::fmt::Debug;
     /// One reading of the water-surface stage, in metres above the sensor datum.
     fn read_stage_m(&mut self) -> Result<f32, Self::Error>;
-}
-
-/// Everything the main loop needs from a board: its drivers, clock, flash and watchdog.
-///
-/// Porting holdback to a new MCU means implementing this trait for that board.
-pub trait Board {
-    /// The stage sensor driver.
-    type Stage: StageInput;
-    /// Seconds since boot, from a monotonic clock.
-    fn now_s(&self) -> u32;
-    /// The stage sensor.
-    fn stage(&mut self) -> &mut Self::Stage;
-    /// Feed the watchdog; called once per control step.
-    fn feed_watchdog(&mut self);
 }
