@@ -382,7 +382,11 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
                     }
                 }
             }
-            let policy = sim.policy.first().copied().unwrap_or(PolicyKind::Controller);
+            let policy = sim
+                .policy
+                .first()
+                .copied()
+                .unwrap_or(PolicyKind::Controller);
             let rows = batch::run(&p, &storms_list, policy, seeds.max(1), &opts);
             let table = batch::table(&rows);
             print!("{table}");
@@ -605,7 +609,10 @@ fn demo(p: &Pond, out: &Path) -> Result<u8, Fail> {
         .rain_mm
         .iter()
         .enumerate()
-        .fold((0usize, 0.0f64), |b, (k, d)| if *d > b.1 { (k, *d) } else { b })
+        .fold(
+            (0usize, 0.0f64),
+            |b, (k, d)| if *d > b.1 { (k, *d) } else { b },
+        )
         .0;
     let opts = RunOptions {
         seed: 1,
@@ -645,7 +652,10 @@ fn demo(p: &Pond, out: &Path) -> Result<u8, Fail> {
         println!("{:>6} s  {:<18} {}", e.t_s, e.kind, e.detail);
     }
     println!();
-    eprintln!("holdback: demo: writing the plots, summaries and report into {}", out.display());
+    eprintln!(
+        "holdback: demo: writing the plots, summaries and report into {}",
+        out.display()
+    );
     replay(
         p,
         &storm,

@@ -449,7 +449,14 @@ pub fn predicted_stages(
         let Ok(part) = Outlook::from_samples(outlook.step_s(), &q[..k]) else {
             break;
         };
-        let p = forecast::predict(cfg.storage(), cfg.outlet(), storage_m3, &part, policy, &limits);
+        let p = forecast::predict(
+            cfg.storage(),
+            cfg.outlet(),
+            storage_m3,
+            &part,
+            policy,
+            &limits,
+        );
         v.push((k as u32 * outlook.step_s(), q[k - 1], p.end_stage_m));
     }
     v
@@ -813,25 +820,25 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
                     mode = mode_name(o.mode);
                     r.events
                         .extend(o.events.iter().filter_map(|e| SimEvent::from_body(t, e)));
-                    if forecast_at.contains(&t) {
-                        if let (Some(look), Some(h)) = (c.outlook_now(cfg, t), o.stage_m) {
-                            r.forecast_checks.push(ForecastCheck {
-                                at_s: t,
-                                from_stage_m: h,
-                                future_rain_mm: look.future_rain_mm(),
-                                step_s: look.step_s(),
-                                rows: predicted_stages(cfg, pondss.storage_m3(h), &look)
-                                    .into_iter()
-                                    .map(|(a, q, hp)| ForecastRow {
-                                        ahead_s: a,
-                                        inflow_m3s: q,
-                                        predicted_stage_m: hp,
-                                        actual_stage_m: f32::NAN,
-                                        actual_inflow_m3s: f32::NAN,
-                                    })
-                                    .collect(),
-                            });
-                        }
+                    if forecast_at.contains(&t)
+                        && let (Some(look), Some(h)) = (c.outlook_now(cfg, t), o.stage_m)
+                    {
+                        r.forecast_checks.push(ForecastCheck {
+                            at_s: t,
+                            from_stage_m: h,
+                            future_rain_mm: look.future_rain_mm(),
+                            step_s: look.step_s(),
+                            rows: predicted_stages(cfg, pondss.storage_m3(h), &look)
+                                .into_iter()
+                                .map(|(a, q, hp)| ForecastRow {
+                                    ahead_s: a,
+                                    inflow_m3s: q,
+                                    predicted_stage_m: hp,
+                                    actual_stage_m: f32::NAN,
+                                    actual_inflow_m3s: f32::NAN,
+                                })
+                                .collect(),
+                        });
                     }
                 }
             }

@@ -56,8 +56,7 @@ fn demo_prints_rating_and_routed_storm_and_the_caution() {
     );
     // The judged policy is the controller: exit 0 exactly when its summary passes.
     let sm: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(dir.path().join("holdback-demo/summary-controller.json"))
-            .unwrap(),
+        &std::fs::read_to_string(dir.path().join("holdback-demo/summary-controller.json")).unwrap(),
     )
     .unwrap();
     assert_eq!(sm["policy"], "controller");
@@ -66,7 +65,11 @@ fn demo_prints_rating_and_routed_storm_and_the_caution() {
     // Every controller mode change in the events matches the mode column of the series.
     let series =
         std::fs::read_to_string(dir.path().join("holdback-demo/series-controller.csv")).unwrap();
-    let modes: Vec<&str> = series.lines().skip(1).filter_map(|l| l.rsplit(',').next()).collect();
+    let modes: Vec<&str> = series
+        .lines()
+        .skip(1)
+        .filter_map(|l| l.rsplit(',').next())
+        .collect();
     assert!(modes.contains(&"capture") && modes.contains(&"drawdown"));
     let changes = sm["events"]
         .as_array()
