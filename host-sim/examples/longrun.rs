@@ -17,18 +17,8 @@
 use std::time::Instant;
 
 use holdback_sim::pondfile::{self, DEMO_POND};
+use holdback_sim::rainfile::days_from_civil;
 use holdback_sim::sim::{self, Models, PolicyKind, RunOptions, Storm};
-
-/// Days from 1970-01-01 of a proleptic Gregorian date (Hinnant's `days_from_civil`).
-fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
-    let y = if m <= 2 { y - 1 } else { y };
-    let era = y.div_euclid(400);
-    let yoe = y - era * 400;
-    let mp = (m + 9) % 12;
-    let doy = (153 * mp + 2) / 5 + d - 1;
-    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    era * 146_097 + doe - 719_468
-}
 
 /// Minutes since the epoch of `YYYY-MM-DDTHH:MMZ`.
 fn minutes(stamp: &str) -> Option<i64> {
