@@ -38,12 +38,13 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
-    /// Run the built-in demo pond: rating table, a routed 10-year design storm, and the
-    /// policies side by side (no arguments needed).
+    /// Run the built-in demo pond: rating table, a 10-year design storm routed under the
+    /// gate controller, the forecast at the heaviest rain next to what happened, and the
+    /// controller, baselines and bound side by side (no arguments needed).
     Demo {
-        /// Also write the CSV, JSON, plots and HTML report into this folder.
-        #[arg(long)]
-        out: Option<PathBuf>,
+        /// Write the CSV, JSON, plots and HTML report into this folder.
+        #[arg(long, default_value = "holdback-demo")]
+        out: PathBuf,
         /// Write the demo pond file here (to copy and edit) and stop.
         #[arg(long)]
         write_pond: Option<PathBuf>,
@@ -191,7 +192,7 @@ struct StormArgs {
 #[derive(Args, Clone)]
 struct SimArgs {
     /// Policies to run side by side.
-    #[arg(long, value_delimiter = ',', value_enum, default_values = ["threshold", "fixed", "bound"])]
+    #[arg(long, value_delimiter = ',', value_enum, default_values = ["controller", "threshold", "fixed", "bound"])]
     policy: Vec<PolicyKind>,
     /// Seed of the sensor noise.
     #[arg(long, default_value_t = 1)]
@@ -259,11 +260,20 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             }
             let pond = pondfile::load_str(DEMO_POND)
                 .map_err(|ps| bad(format!("the built-in demo pond does not load: {}", ps[0])))?;
-            demo(&pond, out.as_deref())
+            demo(&pond, &out)
         }
         Command::Check { pond, strict } => {
-            let p = load(&pond)?;
+            let mut p = load(&pond)?;
             println!("{}: ok ({})", pond.display(), p.name);
+            match pondfile::storage_check(&p) {
+                Ok(c) => {
+                    println!("{}", c.line());
+                    if let Some(w) = c.warning() {
+                        p.warnings.push(w);
+                    }
+                }
+                Err(e) => p.warnings.push(format!("storage check not done: {e}")),
+            }
             for w in &p.warnings {
                 eprintln!("holdback: warning: {w}");
             }
@@ -372,7 +382,11 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
                     }
                 }
             }
-            let policy = sim.policy.first().copied().unwrap_or(PolicyKind::Threshold);
+            let policy = sim
+                .policy
+                .first()
+                .copied()
+                .unwrap_or(PolicyKind::Controller);
             let rows = batch::run(&p, &storms_list, policy, seeds.max(1), &opts);
             let table = batch::table(&rows);
             print!("{table}");
@@ -546,6 +560,7 @@ fn run_options(p: &Pond, a: &SimArgs) -> Result<RunOptions, Fail> {
         faults,
         tail_s: (a.tail_h * 3600.0) as u32,
         record_s: a.record_s,
+        forecast_at_s: Vec::new(),
     })
 }
 
@@ -582,22 +597,33 @@ fn replay(
     Ok(if pass { 0 } else { 1 })
 }
 
-fn demo(p: &Pond, out: Option<&Path>) -> Result<u8, Fail> {
+fn demo(p: &Pond, out: &Path) -> Result<u8, Fail> {
     println!("# {}", p.name);
     println!("# rating: stage, storage and discharge (gate closed, half, fully open)");
     print!("{}", report::rating_table(p, None, 0.25));
     let storm = storms::design(p, 10.0, 60, 300, Shape::Chicago, 0.5).map_err(bad)?;
     println!();
     println!("# storm: {} ({:.1} mm)", storm.name, storm.total_mm());
+    // The forecast is shown from the start of the heaviest rain step.
+    let heaviest = storm
+        .rain_mm
+        .iter()
+        .enumerate()
+        .fold(
+            (0usize, 0.0f64),
+            |b, (k, d)| if *d > b.1 { (k, *d) } else { b },
+        )
+        .0;
     let opts = RunOptions {
         seed: 1,
         models: Models::default(),
         faults: Vec::new(),
         tail_s: 72 * 3600,
         record_s: 60,
+        forecast_at_s: vec![heaviest as u32 * storm.dt_s],
     };
-    let run = sim::run(p, &storm, PolicyKind::Threshold, &opts);
-    println!("# routed outflow, policy threshold, every 10 min for the first 4 h");
+    let run = sim::run(p, &storm, PolicyKind::Controller, &opts);
+    println!("# routed outflow, policy controller, every 10 min for the first 4 h");
     println!("t_min,rain_mm,inflow_m3s,stage_m,release_m3s,gate_m,mode");
     let mut rain = 0.0;
     for r in &run.rows {
@@ -616,12 +642,30 @@ fn demo(p: &Pond, out: Option<&Path>) -> Result<u8, Fail> {
             rain = 0.0;
         }
     }
+    for fc in &run.forecast_checks {
+        println!();
+        print!("{}", report::forecast_table(fc));
+    }
     println!();
+    println!("# controller events");
+    for e in &run.events {
+        println!("{:>6} s  {:<18} {}", e.t_s, e.kind, e.detail);
+    }
+    println!();
+    eprintln!(
+        "holdback: demo: writing the plots, summaries and report into {}",
+        out.display()
+    );
     replay(
         p,
         &storm,
-        &[PolicyKind::Threshold, PolicyKind::Fixed, PolicyKind::Bound],
+        &[
+            PolicyKind::Controller,
+            PolicyKind::Threshold,
+            PolicyKind::Fixed,
+            PolicyKind::Bound,
+        ],
         &opts,
-        out,
+        Some(out),
     )
 }

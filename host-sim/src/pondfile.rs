@@ -55,6 +55,9 @@ pub struct Pond {
     pub config: PondConfig,
     /// The pre-retrofit fixed outlet, if described (the fixed-outlet baseline).
     pub existing: Option<Outlet>,
+    /// The configuration with the pre-retrofit outlet in place of the new one (its gate kept
+    /// closed), for the fixed-outlet baseline's plant; None without an `[existing]` outlet.
+    pub existing_config: Option<PondConfig>,
     /// Sub-catchment names, in order.
     pub sub_names: Vec<String>,
     /// Warnings: legal but suspicious.
@@ -938,11 +941,29 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
             )
         }
     };
+    let existing_config = match &f.existing {
+        None => None,
+        Some(ex) => {
+            let mut s = spec.clone();
+            s.outlet.fixed.clear();
+            for st in &ex.fixed {
+                s.outlet
+                    .fixed
+                    .push(st.spec())
+                    .map_err(|_| one(problem("existing.fixed", ": at most 8 structures")))?;
+            }
+            Some(
+                s.build()
+                    .map_err(|e| one(problem("existing", format!(": {e}"))))?,
+            )
+        }
+    };
     Ok(Pond {
         name: f.name.clone(),
         spec,
         config,
         existing,
+        existing_config,
         sub_names: f.catchment.sub.iter().map(|s| s.name.clone()).collect(),
         warnings: Vec::new(),
     })
@@ -1031,6 +1052,88 @@ fn warnings(f: &File, pond: &Pond) -> Vec<String> {
         );
     }
     w
+}
+
+/// Return period of the storage check when `control.design_return_period_yr` is unset, years
+/// (common practice, no source).
+pub const DEFAULT_CHECK_RETURN_PERIOD_YR: f32 = 10.0;
+
+/// The routed storage a design storm needs against the storage the pond has.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StorageCheck {
+    /// Return period used, years.
+    pub return_period_yr: f32,
+    /// Critical rain duration (the largest routed storage), s.
+    pub critical_duration_s: u32,
+    /// Detention storage needed above the normal level at that duration, m³.
+    pub needed_m3: f32,
+    /// Storage available between the normal level and crest − freeboard, m³.
+    pub available_m3: f32,
+    /// Peak stage of that routing, m.
+    pub peak_stage_m: f32,
+}
+
+impl StorageCheck {
+    /// One line of text for `check`.
+    pub fn line(&self) -> String {
+        format!(
+            "storage: {:.0} m3 needed above the normal level ({}-year, critical duration {} \
+             min, routed at release = min(permit, full-open capacity)); {:.0} m3 available up \
+             to crest - freeboard",
+            self.needed_m3,
+            self.return_period_yr,
+            self.critical_duration_s / 60,
+            self.available_m3
+        )
+    }
+
+    /// The warning when the pond is too small for its permit at the design return period.
+    pub fn warning(&self) -> Option<String> {
+        (self.needed_m3 > self.available_m3).then(|| {
+            format!(
+                "storage: the {}-year storm of {} min needs {:.0} m3 of detention at the \
+                 permit, more than the {:.0} m3 between the normal level and crest - freeboard \
+                 (peak stage {:.2} m): expect releases above the permit or overtopping",
+                self.return_period_yr,
+                self.critical_duration_s / 60,
+                self.needed_m3,
+                self.available_m3,
+                self.peak_stage_m
+            )
+        })
+    }
+}
+
+/// The storage check of `holdback check` ([`holdback_core::sizing`]): each rain duration from
+/// 10 min to 24 h (10-min grid) of the design return period is routed through the pond with
+/// the release of a perfect controller, `min(permit, full-open capacity)`, from the normal
+/// level; the largest detention storage is compared with the storage between the normal
+/// level and crest − freeboard.
+pub fn storage_check(pond: &Pond) -> Result<StorageCheck, String> {
+    use holdback_core::sizing::{DurationGrid, SizingCase};
+    let cfg = &pond.config;
+    let t = match cfg.control().design_return_period_yr {
+        x if x > 0.0 => x,
+        _ => DEFAULT_CHECK_RETURN_PERIOD_YR,
+    };
+    let catchment = pond.spec.build_catchment().map_err(|e| e.to_string())?;
+    let case = SizingCase::new(cfg.idf(), t, &catchment, cfg.permit().release_m3s)
+        .map_err(|e| e.to_string())?;
+    let grid = DurationGrid::new(600, 24 * 3600, 600).map_err(|e| e.to_string())?;
+    let open = cfg.outlet().at(cfg.outlet().max_opening_m());
+    let release = case.capped(&open);
+    let pond_ss = cfg.storage();
+    let s0 = pond_ss.storage_m3(cfg.levels().normal_m);
+    let p = case
+        .routed(pond_ss, &release, s0, 60, &grid)
+        .map_err(|e| e.to_string())?;
+    Ok(StorageCheck {
+        return_period_yr: t,
+        critical_duration_s: p.duration_s,
+        needed_m3: p.detention_m3,
+        available_m3: pond_ss.storage_m3(cfg.stage_limit_m()) - s0,
+        peak_stage_m: p.peak_stage_m,
+    })
 }
 
 /// Reads and loads a pond file from disk.

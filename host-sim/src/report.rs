@@ -8,7 +8,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 
 use crate::pondfile::Pond;
-use crate::sim::{Run, Storm};
+use crate::sim::{ForecastCheck, Run, Storm};
 use crate::summary::{self, Summary};
 
 /// The caution printed in every report.
@@ -94,6 +94,31 @@ pub fn summary_table(runs: &[(Run, Summary)]) -> String {
                 .map_or("-".into(), |d| format!("{:.1}", d as f64 / 3600.0)),
             m.gate_moves,
             if m.pass { "yes" } else { "NO" }
+        );
+    }
+    s
+}
+
+/// The controller's forecast next to the simulated stage (text table).
+pub fn forecast_table(fc: &ForecastCheck) -> String {
+    let mut s = format!(
+        "# forecast at t = {} min (stage {:.3} m; {:.1} mm more rain assumed): predicted \
+         stage at the permit target vs simulated\n",
+        fc.at_s / 60,
+        fc.from_stage_m,
+        fc.future_rain_mm
+    );
+    s.push_str("ahead_min,inflow_pred_m3s,inflow_sim_m3s,stage_pred_m,stage_sim_m,error_m\n");
+    for r in &fc.rows {
+        let _ = writeln!(
+            s,
+            "{},{:.3},{:.3},{:.3},{:.3},{:+.3}",
+            r.ahead_s / 60,
+            r.inflow_m3s,
+            r.actual_inflow_m3s,
+            r.predicted_stage_m,
+            r.actual_stage_m,
+            r.predicted_stage_m - r.actual_stage_m
         );
     }
     s
@@ -257,7 +282,10 @@ where
     let mut b = ChartBuilder::on(&panels[2]);
     b.margin(6).x_label_area_size(xl).y_label_area_size(label);
     if text {
-        b.caption("Stage (m); dashed: crest and crest - freeboard", font);
+        b.caption(
+            "Stage (m); dashed: crest and crest - freeboard; black dashed: forecast",
+            font,
+        );
     }
     let mut ch = b
         .build_cartesian_2d(0f64..t_end, floor..hmax + 0.05)
@@ -278,6 +306,23 @@ where
         if text {
             s.label(m.policy.to_string())
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], c));
+        }
+    }
+    for fc in &first.forecast_checks {
+        let t0 = fc.at_s as f64;
+        let s = ch
+            .draw_series(DashedLineSeries::new(
+                fc.rows
+                    .iter()
+                    .map(|x| ((t0 + x.ahead_s as f64) / 3600.0, x.predicted_stage_m as f64)),
+                4,
+                3,
+                BLACK.stroke_width(2),
+            ))
+            .map_err(e)?;
+        if text {
+            s.label(format!("forecast at {} min", fc.at_s / 60))
+                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], BLACK));
         }
     }
     for (lvl, col) in [(crest, RED), (limit, RGBColor(255, 127, 14))] {
@@ -517,9 +562,61 @@ pub fn html(p: &Pond, storm: &Storm, runs: &[(Run, Summary)], svg: &str) -> Stri
             m.gate_moves
         );
     }
-    h.push_str("</table><p>The bound is the perfect-foresight schedule (release = min(permit, full-open capacity) from the first drop): no policy that keeps the permit stores less. The fixed policy is the pre-retrofit outlet.</p>");
+    h.push_str("</table><p>The bound is the perfect-foresight schedule (release = min(permit, full-open capacity) from the first drop): no policy that keeps the permit stores less. The controller is the device's own control code (holdback-core), stepped on the sensor models; threshold is the level-threshold baseline; fixed is the pre-retrofit outlet.</p>");
     let faults = runs.first().map_or(0, |(_, m)| m.faults.len());
     let _ = write!(h, "<p>Faults injected: {faults}.</p>");
+    for (_, m) in runs.iter().filter(|(_, m)| !m.events.is_empty()) {
+        let _ = write!(
+            h,
+            "<h2>Events, policy {}</h2><table><tr><th>t (min)</th><th>event</th><th>detail</th></tr>",
+            m.policy
+        );
+        for ev in &m.events {
+            let _ = write!(
+                h,
+                "<tr><td>{:.1}</td><td>{}</td><td>{}</td></tr>",
+                ev.t_s as f64 / 60.0,
+                ev.kind,
+                esc(&ev.detail)
+            );
+        }
+        h.push_str("</table><p>Time in each mode: ");
+        let parts: Vec<String> = m
+            .time_in_mode_s
+            .iter()
+            .map(|(k, v)| format!("{k} {:.1} h", *v as f64 / 3600.0))
+            .collect();
+        h.push_str(&esc(&parts.join(", ")));
+        h.push_str(".</p>");
+    }
+    for (_, m) in runs {
+        for fc in &m.forecast_checks {
+            let _ = write!(
+                h,
+                "<h2>Forecast at {} min ({}) and what happened</h2><p>The controller's own \
+                 outlook (time–area state of the rain counted so far, {:.1} mm more rain \
+                 assumed) routed at the permit target from its filtered stage {:.3} m.</p>\
+                 <table><tr><th>ahead (min)</th><th>inflow forecast m3/s</th><th>inflow \
+                 simulated m3/s</th><th>stage forecast m</th><th>stage simulated m</th></tr>",
+                fc.at_s / 60,
+                m.policy,
+                fc.future_rain_mm,
+                fc.from_stage_m
+            );
+            for r in &fc.rows {
+                let _ = write!(
+                    h,
+                    "<tr><td>{}</td><td>{:.3}</td><td>{:.3}</td><td>{:.3}</td><td>{:.3}</td></tr>",
+                    r.ahead_s / 60,
+                    r.inflow_m3s,
+                    r.actual_inflow_m3s,
+                    r.predicted_stage_m,
+                    r.actual_stage_m
+                );
+            }
+            h.push_str("</table>");
+        }
+    }
     h.push_str("<h2>Plots</h2>");
     // The SVG document's XML declaration is not allowed inline.
     let body = svg.find("<svg").map_or(svg, |i| &svg[i..]);

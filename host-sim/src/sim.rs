@@ -6,9 +6,11 @@
 //! the step counter. The same pond, storm, policy, options and seed give the same bits.
 
 use holdback_core::config::PondConfig;
-use holdback_core::forecast::{self, Policy as CorePolicy};
-use holdback_core::hydraulics::Outlet;
-use holdback_core::routing::{self, Inflow};
+use holdback_core::control::{Controller, Inputs, Mode, ModeReason};
+use holdback_core::event::{EventBody, ModeCode};
+use holdback_core::forecast::{self, Limits, Outlook, Policy as CorePolicy};
+use holdback_core::plant::{BucketGauge, Plant};
+use holdback_core::routing::Inflow;
 use serde::{Deserialize, Serialize};
 
 use crate::pondfile::Pond;
@@ -83,6 +85,34 @@ impl Storm {
     pub fn rain_end_s(&self) -> u64 {
         let last = self.rain_mm.iter().rposition(|d| *d > 0.0);
         last.map_or(0, |k| (k as u64 + 1) * self.dt_s as u64)
+    }
+}
+
+/// The storm's mass curve read forward in time in O(1) per call (times must not decrease),
+/// for long records where [`Storm::depth_between`] (O(n) per call) is too slow.
+#[derive(Debug, Clone, Default)]
+pub struct MassCursor {
+    k: usize,
+    full_mm: f64,
+}
+
+impl MassCursor {
+    /// Rain fallen from the start to `t_s`, mm (spread uniformly within each step).
+    pub fn mass(&mut self, storm: &Storm, t_s: f64) -> f64 {
+        let dt = storm.dt_s.max(1) as f64;
+        if t_s <= 0.0 {
+            return 0.0;
+        }
+        let k = (t_s / dt).floor() as usize;
+        while self.k < k {
+            self.full_mm += storm.rain_mm.get(self.k).copied().unwrap_or(0.0);
+            self.k += 1;
+        }
+        let part = storm
+            .rain_mm
+            .get(k)
+            .map_or(0.0, |d| d * (t_s / dt - k as f64));
+        self.full_mm + part
     }
 }
 
@@ -241,6 +271,9 @@ pub trait Policy {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, clap::ValueEnum)]
 #[serde(rename_all = "kebab-case")]
 pub enum PolicyKind {
+    /// The device's gate controller ([`holdback_core::control::Controller`]), stepped at
+    /// `control.step_s` on the sensor models' readings: the policy that is judged.
+    Controller,
     /// The pre-retrofit fixed outlet (no gate).
     Fixed,
     /// Level threshold: the gate passes the target release at the measured stage, full open
@@ -255,11 +288,178 @@ impl PolicyKind {
     /// Name used in files.
     pub fn name(self) -> &'static str {
         match self {
+            PolicyKind::Controller => "controller",
             PolicyKind::Fixed => "fixed",
             PolicyKind::Threshold => "threshold",
             PolicyKind::Bound => "bound",
         }
     }
+}
+
+/// The controller's mode as the name used in time series and plots (its `Display` text).
+pub fn mode_name(m: Mode) -> &'static str {
+    match m {
+        Mode::Standby => "standby",
+        Mode::Capture => "capture",
+        Mode::Drawdown => "drawdown",
+        Mode::Surcharge => "surcharge",
+        Mode::Failsafe => "failsafe",
+        Mode::Manual => "manual",
+    }
+}
+
+fn mode_of_code(c: ModeCode) -> &'static str {
+    match c {
+        ModeCode::Standby => "standby",
+        ModeCode::Capture => "capture",
+        ModeCode::Drawdown => "drawdown",
+        ModeCode::Surcharge => "surcharge",
+        ModeCode::Failsafe => "failsafe",
+        ModeCode::Manual => "manual",
+        _ => "unknown",
+    }
+}
+
+/// A [`ModeReason`] code by name (the log carries the code).
+fn reason_of_code(code: u8) -> String {
+    const ALL: [ModeReason; 15] = [
+        ModeReason::RainStarted,
+        ModeReason::StageAboveNormal,
+        ModeReason::RainEnded,
+        ModeReason::NoMoreInflow,
+        ModeReason::BackToNormal,
+        ModeReason::ForecastOverLimit,
+        ModeReason::StageOverLimit,
+        ModeReason::ForecastHolds,
+        ModeReason::StageFault,
+        ModeReason::GateFault,
+        ModeReason::FaultsCleared,
+        ModeReason::ManualCommand,
+        ModeReason::ManualExpired,
+        ModeReason::ManualResumed,
+        ModeReason::RainResumed,
+    ];
+    ALL.iter()
+        .find(|r| r.code() == code)
+        .map_or_else(|| format!("reason code {code}"), |r| format!("{r:?}"))
+}
+
+/// One logged event of a run (the controller's event records, without the per-move
+/// `Decision` records), in the summary JSON and the report.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct SimEvent {
+    /// Time from the storm start, s.
+    pub t_s: u32,
+    /// `mode-change`, `fault-raised`, `fault-cleared`, `permit-exceedance`, `alarm` or
+    /// `command-rejected`.
+    pub kind: &'static str,
+    /// What, in words (modes, fault source and kind, release and reason, alarm and value).
+    pub detail: String,
+}
+
+impl SimEvent {
+    /// The event of a controller record, None for records not listed (decisions, samples).
+    pub fn from_body(t_s: u32, e: &EventBody) -> Option<SimEvent> {
+        let (kind, detail) = match *e {
+            EventBody::ModeChange { from, to, reason } => (
+                "mode-change",
+                format!(
+                    "{} -> {}: {}",
+                    mode_of_code(from),
+                    mode_of_code(to),
+                    reason_of_code(reason)
+                ),
+            ),
+            EventBody::FaultRaised { source, kind } => {
+                ("fault-raised", format!("{source:?} {kind:?}"))
+            }
+            EventBody::FaultCleared { source, kind } => {
+                ("fault-cleared", format!("{source:?} {kind:?}"))
+            }
+            EventBody::PermitExceedance {
+                release_m3s,
+                permit_m3s,
+                reason,
+            } => (
+                "permit-exceedance",
+                format!("{release_m3s:.3} m3/s over the permit {permit_m3s} m3/s: {reason:?}"),
+            ),
+            EventBody::Alarm { kind, value } => ("alarm", format!("{kind:?} ({value:.3})")),
+            EventBody::CommandRejected { command, value } => (
+                "command-rejected",
+                format!("command {command} value {value}"),
+            ),
+            _ => return None,
+        };
+        Some(SimEvent { t_s, kind, detail })
+    }
+}
+
+/// The controller's forecast at one time of a run next to what then happened.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ForecastCheck {
+    /// When the forecast was made, s from the storm start.
+    pub at_s: u32,
+    /// The stage the forecast starts from (the controller's filtered stage), m.
+    pub from_stage_m: f32,
+    /// Rain the outlook assumes is still to fall, mm (persistence or design storm).
+    pub future_rain_mm: f32,
+    /// Forecast step, s.
+    pub step_s: u32,
+    /// Per forecast step from `at_s` (0 first): offset s, predicted inflow m³/s, predicted
+    /// stage m at the permit target (the controller's own predictor), simulated true stage m
+    /// (NaN past the end of the run).
+    pub rows: Vec<ForecastRow>,
+}
+
+/// One row of a [`ForecastCheck`].
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ForecastRow {
+    /// Time after the forecast, s.
+    pub ahead_s: u32,
+    /// Predicted step-mean inflow over the step ending here, m³/s (0 at the start).
+    pub inflow_m3s: f32,
+    /// Predicted stage, m.
+    pub predicted_stage_m: f32,
+    /// Simulated true stage, m.
+    pub actual_stage_m: f32,
+    /// Simulated inflow, m³/s.
+    pub actual_inflow_m3s: f32,
+}
+
+/// The predicted stage trajectory of `outlook` from `storage_m3` with the gate at the permit
+/// target, from the controller's own predictor ([`forecast::predict`]) run on each prefix of
+/// the outlook: (time ahead s, inflow m³/s, stage m), the start included.
+pub fn predicted_stages(
+    cfg: &PondConfig,
+    storage_m3: f32,
+    outlook: &Outlook,
+) -> Vec<(u32, f32, f32)> {
+    let limits = Limits {
+        permit_m3s: cfg.target_release_m3s(),
+        stage_limit_m: cfg.stage_limit_m(),
+        crest_m: cfg.levels().crest_m,
+    };
+    let policy = CorePolicy::CapRelease {
+        cap_m3s: cfg.target_release_m3s(),
+    };
+    let q = outlook.inflow_m3s();
+    let mut v = vec![(0, 0.0, cfg.storage().stage_m(storage_m3))];
+    for k in 1..=q.len() {
+        let Ok(part) = Outlook::from_samples(outlook.step_s(), &q[..k]) else {
+            break;
+        };
+        let p = forecast::predict(
+            cfg.storage(),
+            cfg.outlet(),
+            storage_m3,
+            &part,
+            policy,
+            &limits,
+        );
+        v.push((k as u32 * outlook.step_s(), q[k - 1], p.end_stage_m));
+    }
+    v
 }
 
 /// The level-threshold baseline. Keeps the control settings' deadband and least time
@@ -328,6 +528,9 @@ pub struct RunOptions {
     pub tail_s: u32,
     /// One time-series row every this many s.
     pub record_s: u32,
+    /// Times (s from the storm start, rounded down to a control step) at which the
+    /// controller's forecast is recorded next to what then happened ([`ForecastCheck`]).
+    pub forecast_at_s: Vec<u32>,
 }
 
 /// One recorded time-series row.
@@ -388,68 +591,131 @@ pub struct Run {
     pub rain_end_s: u64,
     /// Run length, s.
     pub length_s: u64,
+    /// The controller's events (empty for the other policies).
+    pub events: Vec<SimEvent>,
+    /// Time spent in each mode, s, by mode name (sorted by name).
+    pub time_in_mode_s: std::collections::BTreeMap<&'static str, u64>,
+    /// The controller's forecasts next to what happened (see [`RunOptions::forecast_at_s`]).
+    pub forecast_checks: Vec<ForecastCheck>,
 }
 
-struct Gate {
-    pos: f64,
-    /// Motor-side position (backlash: the gate follows once the slack is taken up).
-    motor: f64,
-    moving: bool,
-    moves: u32,
+/// Backlash (dead travel on reversal) between the drive and the gate leaf, as a play
+/// operator on the command: after a reversal the leaf stops short of the command by half
+/// the dead travel; the end stops (closed, full open) take the slack up.
+#[derive(Debug, Clone, Copy)]
+struct Backlash {
+    half_m: f32,
+    out_m: f32,
+}
+
+impl Backlash {
+    fn apply(&mut self, cmd_m: f32, max_m: f32) -> f32 {
+        if cmd_m <= 0.0 || cmd_m >= max_m {
+            self.out_m = cmd_m;
+        } else if cmd_m > self.out_m + self.half_m {
+            self.out_m = cmd_m - self.half_m;
+        } else if cmd_m < self.out_m - self.half_m {
+            self.out_m = cmd_m + self.half_m;
+        }
+        self.out_m
+    }
+}
+
+/// The stage-sensor model: first-order lag, Gaussian noise, quantum (faults applied later).
+struct StageSensor {
+    lagged_m: f64,
+    alpha: f64,
 }
 
 /// Runs one policy on one storm.
+///
+/// The water is [`holdback_core::plant::Plant`] (time–area inflow, level-pool routing at the
+/// actual opening, gate speed), the same model the emulated board steps; this wrapper adds the
+/// sensor models (stage lag, noise, quantum; bucket tips of [`BucketGauge`]; position quantum;
+/// limit switches from the true opening), gate backlash and the scripted faults, and steps the
+/// policy at `control.step_s`. The bound has no gate: it routes the same inflow (one response
+/// step late, as the plant delivers it) with [`forecast::step_capped`].
 pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Run {
     let cfg = &pond.config;
-    let gateless;
-    let outlet: &Outlet = match (kind, &pond.existing) {
-        (PolicyKind::Fixed, Some(ex)) => ex,
-        (PolicyKind::Fixed, None) => {
-            gateless = Outlet::new(cfg.outlet().fixed(), None, cfg.outlet().tailwater_m())
-                .unwrap_or_else(|_| cfg.outlet().clone());
-            &gateless
-        }
-        _ => cfg.outlet(),
+    // The plant's configuration: the pre-retrofit outlet for the fixed baseline.
+    let plant_cfg: &PondConfig = match (kind, &pond.existing_config) {
+        (PolicyKind::Fixed, Some(c)) => c,
+        _ => cfg,
     };
     let pondss = cfg.storage();
     let dt = cfg.control().step_s.max(1);
     let resp = cfg.catchment();
     let dtc = resp.dt_s().max(1);
-    // Rain per catchment step, convolved once (the recession runs past the rain).
     let rain_end = storm.rain_end_s().max(storm.duration_s());
     let tail = opt.tail_s as u64;
     let total_s = rain_end + tail;
-    let n_c = total_s.div_ceil(dtc as u64) as usize + 1;
-    let rain_c: Vec<f32> = (0..n_c)
-        .map(|k| {
-            let a = k as f64 * dtc as f64;
-            storm.depth_between(a, a + dtc as f64) as f32
-        })
-        .collect();
-    let mut inflow_c = vec![0.0f32; n_c];
-    resp.convolve(&rain_c, &mut inflow_c);
+    // The response has delivered everything one step after its last ordinate.
+    let runoff_done_s = rain_end + (resp.ordinates_m2().len() as u64 + 2) * dtc as u64;
+    let m = opt.models;
+    let normal_m = cfg.levels().normal_m;
+    let mut plant = Plant::new(
+        plant_cfg,
+        normal_m,
+        0.0,
+        if m.gate_speed_m_s > 0.0 {
+            m.gate_speed_m_s as f32
+        } else {
+            f32::INFINITY
+        },
+        0,
+    )
+    .ok();
+    // The bound's inflow: the time–area convolution, delivered one response step late.
+    let bound_inflow: Vec<f32> = if kind == PolicyKind::Bound || plant.is_none() {
+        let n_c = total_s.div_ceil(dtc as u64) as usize + 1;
+        let mut cur = MassCursor::default();
+        let mut m0 = 0.0;
+        let rain_c: Vec<f32> = (0..n_c)
+            .map(|k| {
+                let m1 = cur.mass(storm, (k + 1) as f64 * dtc as f64);
+                let d = m1 - m0;
+                m0 = m1;
+                d as f32
+            })
+            .collect();
+        let mut q = vec![0.0f32; n_c + 1];
+        resp.convolve(&rain_c, &mut q[1..]);
+        q
+    } else {
+        Vec::new()
+    };
+    let outlet = cfg.outlet();
+    let max_open = plant_cfg.outlet().max_opening_m();
 
     let permit = cfg.permit().release_m3s as f64;
-    let normal = cfg.levels().normal_m as f64;
+    let normal = normal_m as f64;
     let crest = cfg.levels().crest_m as f64;
-    let m = opt.models;
     let mut rng = Rng::new(opt.seed);
-    let mut s = pondss.storage_m3(cfg.levels().normal_m);
+    let mut s = pondss.storage_m3(normal_m);
     let mut stage = pondss.stage_m(s) as f64;
-    let mut lagged = stage;
-    let mut last_read: Option<f32> = None;
-    let mut gate = Gate {
-        pos: 0.0,
-        motor: 0.0,
-        moving: false,
-        moves: 0,
+    let mut sensor = StageSensor {
+        lagged_m: stage,
+        alpha: if m.stage_lag_s > 0.0 {
+            1.0 - (-(dt as f64) / m.stage_lag_s).exp()
+        } else {
+            1.0
+        },
     };
+    let mut last_read: Option<f32> = None;
     let mut last_gate_read: Option<f32> = None;
     let mut threshold = Threshold::default();
-    let mut bucket_acc = 0.0f64;
-    let bucket = cfg.sensors().gauge.bucket_mm as f64;
+    let mut ctl = (kind == PolicyKind::Controller).then(|| Controller::new(cfg, 0));
+    let mut gauge = BucketGauge::new(cfg.sensors().gauge.bucket_mm).ok();
+    let bucket = cfg.sensors().gauge.bucket_mm;
+    let mut backlash = Backlash {
+        half_m: (m.gate_backlash_m / 2.0).max(0.0) as f32,
+        out_m: 0.0,
+    };
     let mut command = 0.0f32;
     let mut mode: &'static str = kind.name();
+    let mut last_mode = mode;
+    let mut opening = 0.0f32;
+    let mut was_moving = false;
 
     let mut r = Run {
         policy: kind,
@@ -467,130 +733,171 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         gate_moves: 0,
         rain_end_s: storm.rain_end_s(),
         length_s: 0,
+        events: Vec::new(),
+        time_in_mode_s: Default::default(),
+        forecast_checks: Vec::new(),
     };
     let record = opt.record_s.max(dt);
+    let forecast_at: Vec<u32> = opt.forecast_at_s.iter().map(|t| t / dt * dt).collect();
     let mut rain_since_record = 0.0f64;
+    let mut cursor = MassCursor::default();
+    let mut mass_t = 0.0f64;
+    let mut rain_step = 0.0f64;
+    let mut mode_since: u32 = 0;
     let mut t: u32 = 0;
     loop {
         let t64 = t as u64;
-        // --- sensors
-        let rain_step = storm.depth_between(t64 as f64 - dt as f64, t64 as f64);
-        rain_since_record += rain_step;
-        let alpha = if m.stage_lag_s > 0.0 {
-            1.0 - (-(dt as f64) / m.stage_lag_s).exp()
-        } else {
-            1.0
+        // --- sensors (the state at t; the gauge counts the rain of the last step)
+        let needs_sensors = matches!(kind, PolicyKind::Controller | PolicyKind::Threshold);
+        let mut obs = Observation {
+            stage_m: None,
+            rain_mm: 0.0,
+            gate_m: None,
         };
-        lagged += alpha * (stage - lagged);
-        let mut reading = Some(lagged + m.stage_noise_m * rng.normal());
-        let mut rain_read = {
-            bucket_acc += rain_step;
-            let tips = (bucket_acc / bucket).floor();
-            bucket_acc -= tips * bucket;
-            tips * bucket
-        };
-        let mut gate_read = Some(gate.pos);
-        for f in opt.faults.iter().filter(|f| f.active(t)) {
-            let since_h = (t - f.at_s) as f64 / 3600.0;
-            let v = match f.target {
-                FaultTarget::Stage => &mut reading,
-                FaultTarget::Gate => &mut gate_read,
-                FaultTarget::Rain => {
-                    if matches!(f.kind, FaultKind::Stuck | FaultKind::Dropout) {
-                        rain_read = 0.0;
+        let mut tips = 0u16;
+        if needs_sensors {
+            sensor.lagged_m += sensor.alpha * (stage - sensor.lagged_m);
+            let mut reading = Some(sensor.lagged_m + m.stage_noise_m * rng.normal());
+            tips = gauge.as_mut().map_or(0, |g| g.tips(rain_step as f32));
+            let mut gate_read = Some(opening as f64);
+            for f in opt.faults.iter().filter(|f| f.active(t)) {
+                let since_h = (t - f.at_s) as f64 / 3600.0;
+                let v = match f.target {
+                    FaultTarget::Stage => &mut reading,
+                    FaultTarget::Gate => &mut gate_read,
+                    FaultTarget::Rain => {
+                        if matches!(f.kind, FaultKind::Stuck | FaultKind::Dropout) {
+                            tips = 0;
+                        }
+                        continue;
                     }
-                    continue;
+                };
+                match f.kind {
+                    FaultKind::Dropout => *v = None,
+                    FaultKind::Stuck => {
+                        let prev = if f.target == FaultTarget::Stage {
+                            last_read
+                        } else {
+                            last_gate_read
+                        };
+                        *v = prev.map(f64::from);
+                    }
+                    FaultKind::Drift { per_h } => *v = v.map(|x| x + per_h * since_h),
+                    FaultKind::Offset { by } => *v = v.map(|x| x + by),
+                    FaultKind::Stall => {}
                 }
-            };
-            match f.kind {
-                FaultKind::Dropout => *v = None,
-                FaultKind::Stuck => {
-                    let prev = if f.target == FaultTarget::Stage {
-                        last_read
-                    } else {
-                        last_gate_read
-                    };
-                    *v = prev.map(f64::from);
-                }
-                FaultKind::Drift { per_h } => *v = v.map(|x| x + per_h * since_h),
-                FaultKind::Offset { by } => *v = v.map(|x| x + by),
-                FaultKind::Stall => {}
             }
+            let quant = |x: f64, q: f64| if q > 0.0 { (x / q).round() * q } else { x };
+            obs = Observation {
+                stage_m: reading.map(|x| quant(x, m.stage_quantum_m) as f32),
+                rain_mm: f32::from(tips) * bucket,
+                gate_m: gate_read.map(|x| quant(x, m.position_quantum_m) as f32),
+            };
+            last_read = obs.stage_m.or(last_read);
+            last_gate_read = obs.gate_m.or(last_gate_read);
         }
-        let quant = |x: f64, q: f64| if q > 0.0 { (x / q).round() * q } else { x };
-        let stage_read = reading.map(|x| quant(x, m.stage_quantum_m) as f32);
-        let gate_read_q = gate_read.map(|x| quant(x, m.position_quantum_m) as f32);
-        last_read = stage_read.or(last_read);
-        last_gate_read = gate_read_q.or(last_gate_read);
-        let obs = Observation {
-            stage_m: stage_read,
-            rain_mm: rain_read as f32,
-            gate_m: gate_read_q,
-        };
         // --- policy
         match kind {
-            PolicyKind::Fixed => {}
+            PolicyKind::Fixed | PolicyKind::Bound => {}
             PolicyKind::Threshold => {
                 let d = threshold.decide(cfg, &obs, t);
                 command = d.opening_m;
                 mode = d.mode;
             }
-            PolicyKind::Bound => {}
+            PolicyKind::Controller => {
+                if let Some(c) = ctl.as_mut() {
+                    let inputs = Inputs {
+                        stage_m: obs.stage_m,
+                        rain_tips: tips,
+                        gate_position_m: obs.gate_m,
+                        limit_closed: opening <= 0.0,
+                        limit_open: opening >= max_open,
+                        gate_fault: false,
+                        command: None,
+                    };
+                    let o = c.step(cfg, &inputs, t);
+                    command = o.opening_cmd_m;
+                    mode = mode_name(o.mode);
+                    r.events
+                        .extend(o.events.iter().filter_map(|e| SimEvent::from_body(t, e)));
+                    if forecast_at.contains(&t)
+                        && let (Some(look), Some(h)) = (c.outlook_now(cfg, t), o.stage_m)
+                    {
+                        r.forecast_checks.push(ForecastCheck {
+                            at_s: t,
+                            from_stage_m: h,
+                            future_rain_mm: look.future_rain_mm(),
+                            step_s: look.step_s(),
+                            rows: predicted_stages(cfg, pondss.storage_m3(h), &look)
+                                .into_iter()
+                                .map(|(a, q, hp)| ForecastRow {
+                                    ahead_s: a,
+                                    inflow_m3s: q,
+                                    predicted_stage_m: hp,
+                                    actual_stage_m: f32::NAN,
+                                    actual_inflow_m3s: f32::NAN,
+                                })
+                                .collect(),
+                        });
+                    }
+                }
+            }
         }
-        // --- actuator
+        if mode != last_mode {
+            *r.time_in_mode_s.entry(last_mode).or_insert(0) += (t - mode_since) as u64;
+            last_mode = mode;
+            mode_since = t;
+        }
+        // --- actuator and water
         let stalled = opt
             .faults
             .iter()
             .any(|f| f.active(t) && f.target == FaultTarget::Gate && f.kind == FaultKind::Stall);
-        let max_open = outlet.max_opening_m() as f64;
-        let want = (command as f64).clamp(0.0, max_open);
-        let was_moving = gate.moving;
-        if !stalled && kind == PolicyKind::Threshold {
-            let err = want - gate.motor;
-            let step = m.gate_speed_m_s * dt as f64;
-            gate.moving = err.abs() > 1e-6;
-            gate.motor += err.clamp(-step, step);
-            let slack = m.gate_backlash_m / 2.0;
-            if gate.motor - gate.pos > slack {
-                gate.pos = gate.motor - slack;
-            } else if gate.pos - gate.motor > slack {
-                gate.pos = gate.motor + slack;
+        let mass_next = cursor.mass(storm, t64 as f64 + dt as f64);
+        let rain_now = (mass_next - mass_t) as f32;
+        mass_t = mass_next;
+        rain_step = rain_now as f64;
+        let (q_in, released_m3) = match (kind, plant.as_mut()) {
+            (PolicyKind::Bound, _) | (_, None) => {
+                let k = (t / dtc) as usize;
+                let q_in = bound_inflow.get(k).copied().unwrap_or(0.0);
+                let cap = if kind == PolicyKind::Bound {
+                    cfg.permit().release_m3s
+                } else {
+                    0.0
+                };
+                let st = forecast::step_capped(pondss, outlet, s, Inflow::steady(q_in), cap, dt);
+                s = st.storage_m3;
+                stage = st.stage_m as f64;
+                (q_in, st.released_m3)
             }
-            gate.pos = gate.pos.clamp(0.0, max_open);
-        } else {
-            gate.moving = false;
-        }
-        if gate.moving && !was_moving {
-            gate.moves += 1;
-        }
-        // --- plant
-        let k = (t / dtc) as usize;
-        let q_in = inflow_c.get(k).copied().unwrap_or(0.0);
-        let step = match kind {
-            PolicyKind::Bound => forecast::step_capped(
-                pondss,
-                outlet,
-                s,
-                Inflow::steady(q_in),
-                cfg.permit().release_m3s,
-                dt,
-            ),
-            _ => routing::step(
-                pondss,
-                &outlet.at(gate.pos as f32),
-                s,
-                Inflow::steady(q_in),
-                dt,
-            ),
+            (_, Some(p)) => {
+                if kind != PolicyKind::Fixed {
+                    if stalled {
+                        p.command(plant_cfg, p.opening_m());
+                    } else {
+                        p.command(plant_cfg, backlash.apply(command, max_open));
+                    }
+                }
+                let st = p.step(plant_cfg, rain_now, dt);
+                let moving = (st.opening_m - opening).abs() > 1e-6;
+                if moving && !was_moving {
+                    r.gate_moves += 1;
+                }
+                was_moving = moving;
+                opening = st.opening_m;
+                s = st.storage_m3;
+                stage = st.stage_m as f64;
+                (st.inflow_m3s, st.released_m3)
+            }
         };
-        let q_out = step.released_m3 as f64 / dt as f64;
-        s = step.storage_m3;
-        stage = step.stage_m as f64;
+        let q_out = released_m3 as f64 / dt as f64;
         t += dt;
         let t64 = t as u64;
+        rain_since_record += rain_now as f64;
         // --- bookkeeping
         r.inflow_volume_m3 += q_in as f64 * dt as f64;
-        r.released_m3 += step.released_m3 as f64;
+        r.released_m3 += released_m3 as f64;
         r.peak_inflow_m3s = r.peak_inflow_m3s.max(q_in as f64);
         r.peak_release_m3s = r.peak_release_m3s.max(q_out);
         if q_out > permit * (1.0 + 1e-6) {
@@ -618,22 +925,31 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
                 rain_mm: rain_since_record as f32,
                 inflow_m3s: q_in,
                 stage_m: stage as f32,
-                stage_read_m: stage_read.unwrap_or(f32::NAN),
+                stage_read_m: obs.stage_m.unwrap_or(f32::NAN),
                 storage_m3: s,
                 release_m3s: q_out as f32,
-                gate_m: gate.pos as f32,
+                gate_m: opening,
                 command_m: command,
                 mode,
             });
             rain_since_record = 0.0;
         }
-        let pending = inflow_c.iter().skip(k + 1).any(|q| *q > 0.0);
+        let pending = t64 < runoff_done_s;
         let done_rain = t64 >= rain_end;
         if (done_rain && drained && !pending) || t64 >= total_s {
             break;
         }
     }
-    r.gate_moves = gate.moves;
     r.length_s = t as u64;
+    *r.time_in_mode_s.entry(last_mode).or_insert(0) += (t - mode_since) as u64;
+    for fc in &mut r.forecast_checks {
+        for row in &mut fc.rows {
+            let at = fc.at_s + row.ahead_s;
+            if let Some(x) = r.rows.iter().find(|x| x.t_s >= at) {
+                row.actual_stage_m = x.stage_m;
+                row.actual_inflow_m3s = x.inflow_m3s;
+            }
+        }
+    }
     r
 }

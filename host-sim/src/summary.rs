@@ -6,7 +6,7 @@ use std::io::Write;
 use serde::Serialize;
 
 use crate::pondfile::Pond;
-use crate::sim::{Fault, Run, Storm};
+use crate::sim::{Fault, ForecastCheck, Run, SimEvent, Storm};
 
 /// Version of the summary schema; bumped on any change of meaning or removal of a field.
 pub const SUMMARY_SCHEMA_VERSION: u32 = 1;
@@ -75,6 +75,14 @@ pub struct Summary {
     pub criteria: Vec<Criterion>,
     /// All criteria passed.
     pub pass: bool,
+    /// Time in each mode, s, by mode name (added in schema 1; the baselines have one mode).
+    pub time_in_mode_s: std::collections::BTreeMap<&'static str, u64>,
+    /// The controller's events: mode changes, faults, exceedances with reasons, alarms
+    /// (added in schema 1; empty for the baselines).
+    pub events: Vec<SimEvent>,
+    /// The controller's forecasts next to what happened (added in schema 1; empty unless
+    /// asked for, e.g. by `demo`).
+    pub forecast_checks: Vec<ForecastCheck>,
 }
 
 fn round(x: f64, digits: i32) -> f64 {
@@ -164,6 +172,28 @@ pub fn summarise(
         storage_ratio_to_bound: bound_peak.and_then(|b| (b > 0.0).then(|| round(own / b, 3))),
         criteria,
         pass,
+        time_in_mode_s: run.time_in_mode_s.clone(),
+        events: run.events.clone(),
+        forecast_checks: run
+            .forecast_checks
+            .iter()
+            .map(|f| ForecastCheck {
+                from_stage_m: round(f.from_stage_m as f64, 4) as f32,
+                future_rain_mm: round(f.future_rain_mm as f64, 2) as f32,
+                rows: f
+                    .rows
+                    .iter()
+                    .map(|r| crate::sim::ForecastRow {
+                        ahead_s: r.ahead_s,
+                        inflow_m3s: round(r.inflow_m3s as f64, 4) as f32,
+                        predicted_stage_m: round(r.predicted_stage_m as f64, 4) as f32,
+                        actual_stage_m: round(r.actual_stage_m as f64, 4) as f32,
+                        actual_inflow_m3s: round(r.actual_inflow_m3s as f64, 4) as f32,
+                    })
+                    .collect(),
+                ..f.clone()
+            })
+            .collect(),
     }
 }
 

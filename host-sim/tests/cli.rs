@@ -33,9 +33,13 @@ fn demo_file(dir: &Path) -> PathBuf {
 /// Every command prints the caution line on stderr.
 #[test]
 fn demo_prints_rating_and_routed_storm_and_the_caution() {
-    let o = run(&["demo"]);
+    let dir = tempfile::tempdir().unwrap();
+    let o = bin().arg("demo").current_dir(dir.path()).output().unwrap();
     let out = text(&o.stdout);
     let err = text(&o.stderr);
+    // Without --out the files go to ./holdback-demo, said on stderr.
+    assert!(err.contains("into holdback-demo"), "{err}");
+    assert!(dir.path().join("holdback-demo/report.html").exists());
     assert!(
         err.contains("CAUTION") && err.contains("qualified engineer"),
         "{err}"
@@ -46,8 +50,55 @@ fn demo_prints_rating_and_routed_storm_and_the_caution() {
         "{out}"
     );
     assert!(out.contains("bound"), "{out}");
-    // The demo's first policy is judged: 0 pass or 1 a criterion failed, never 2.
-    assert!(matches!(o.status.code(), Some(0 | 1)), "{:?}", o.status);
+    assert!(
+        out.contains("ahead_min,inflow_pred_m3s,inflow_sim_m3s,stage_pred_m,stage_sim_m"),
+        "{out}"
+    );
+    // The judged policy is the controller: exit 0 exactly when its summary passes.
+    let sm: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(dir.path().join("holdback-demo/summary-controller.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(sm["policy"], "controller");
+    let pass = sm["pass"].as_bool().unwrap();
+    assert_eq!(o.status.code(), Some(if pass { 0 } else { 1 }), "{err}");
+    // Every controller mode change in the events matches the mode column of the series.
+    let series =
+        std::fs::read_to_string(dir.path().join("holdback-demo/series-controller.csv")).unwrap();
+    let modes: Vec<&str> = series
+        .lines()
+        .skip(1)
+        .filter_map(|l| l.rsplit(',').next())
+        .collect();
+    assert!(modes.contains(&"capture") && modes.contains(&"drawdown"));
+    let changes = sm["events"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|e| e["kind"] == "mode-change")
+        .count();
+    assert!(changes >= 2, "{changes}");
+}
+
+/// The storage check routes the design storms through the pond at min(permit, capacity):
+/// cutting the permit to a fifth must raise the storage needed above what the pond holds.
+#[test]
+fn check_reports_the_storage_needed_and_warns_when_short() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("small.toml");
+    std::fs::write(
+        &p,
+        DEMO_POND.replace("release_m3s = 0.25", "release_m3s = 0.05"),
+    )
+    .unwrap();
+    let o = run(&["check", p.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(0));
+    assert!(text(&o.stdout).contains("m3 needed above the normal level"));
+    assert!(
+        text(&o.stderr).contains("warning: storage: the 10-year storm"),
+        "{}",
+        text(&o.stderr)
+    );
 }
 
 #[test]
@@ -342,7 +393,7 @@ fn demo_summaries_match_the_golden_files() {
         text(&o.stderr)
     );
     let golden = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/golden");
-    for policy in ["threshold", "fixed", "bound"] {
+    for policy in ["controller", "threshold", "fixed", "bound"] {
         let name = format!("summary-{policy}.json");
         let got = std::fs::read_to_string(dir.path().join(&name)).unwrap();
         let path = golden.join(format!("demo-{name}"));

@@ -393,6 +393,14 @@ impl Controller {
         self.forecasts
     }
 
+    /// The inflow outlook the controller's forecast would use at `now_s` from its present
+    /// state (time–area state of the counted rain, and the future-rain assumption it applies:
+    /// persistence, the design storm, or the stage-based estimate under a rain-gauge fault).
+    /// For replays that compare the forecast with what happened; changes nothing.
+    pub fn outlook_now(&self, cfg: &PondConfig, now_s: u32) -> Option<Outlook> {
+        self.outlook(cfg, now_s, self.faults.active().rain())
+    }
+
     fn log(&mut self, e: EventBody) {
         if self.pending.push_back(e).is_err() {
             self.dropped = self.dropped.saturating_add(1);

@@ -1,0 +1,152 @@
+//! Long-record benchmark: simulated seconds per wall second with the gate controller stepped
+//! every control step over a century of rain (see `host-sim/BENCH.md`).
+//!
+//! The record is real: the DWD 5-min series of station 01684 (Görlitz, 1991–2020, sparse
+//! listing, `../shared/data/rain/`, read from outside the repository and never by a test).
+//! Runs of missing data are cut out (not read as dry), the observed 5-min steps are
+//! concatenated and repeated until the record is `YEARS` long, and the rain is spread
+//! uniformly within each 5-min step, i.e. replayed as 1-minute rain: the demo pond is
+//! stepped at `control.step_s = 60` (rain, runoff and control all on 1-minute steps).
+//!
+//! ```sh
+//! cargo run --release -p holdback-sim --example longrun -- [DWD_CSV] [YEARS] [rating.csv]
+//! ```
+//! With a third argument it also writes the fixed outlet's stage–storage–discharge table and
+//! the 1-minute inflow of the first year for `host-sim/bench/level_pool.py`.
+
+use std::time::Instant;
+
+use holdback_sim::pondfile::{self, DEMO_POND};
+use holdback_sim::rainfile::days_from_civil;
+use holdback_sim::sim::{self, Models, PolicyKind, RunOptions, Storm};
+
+/// Minutes since the epoch of `YYYY-MM-DDTHH:MMZ`.
+fn minutes(stamp: &str) -> Option<i64> {
+    let n = |a: usize, b: usize| stamp.get(a..b)?.parse::<i64>().ok();
+    let d = days_from_civil(n(0, 4)?, n(5, 7)?, n(8, 10)?);
+    Some(d * 1440 + n(11, 13)? * 60 + n(14, 16)?)
+}
+
+/// The observed 5-min steps of the sparse listing, missing runs cut out.
+fn read_dwd(text: &str) -> Vec<f64> {
+    let (start, end) = (
+        minutes("1991-01-01T00:00Z").unwrap_or(0),
+        minutes("2021-01-01T00:00Z").unwrap_or(0),
+    );
+    let n = ((end - start) / 5) as usize;
+    let mut rain = vec![0.0f64; n];
+    let mut missing = vec![false; n];
+    for line in text.lines().filter(|l| !l.starts_with('#')).skip(1) {
+        let mut f = line.split(',');
+        let (Some(t), Some(m), Some(v)) = (f.next(), f.next(), f.next()) else {
+            continue;
+        };
+        let (Some(t), Ok(m)) = (minutes(t), m.parse::<i64>()) else {
+            continue;
+        };
+        let k = ((t - start) / 5).max(0) as usize;
+        if v == "NaN" {
+            for x in missing.iter_mut().skip(k).take((m / 5) as usize) {
+                *x = true;
+            }
+        } else if let (Some(r), Ok(v)) = (rain.get_mut(k), v.parse::<f64>()) {
+            *r = v;
+        }
+    }
+    rain.iter()
+        .zip(&missing)
+        .filter(|(_, m)| !**m)
+        .map(|(r, _)| *r)
+        .collect()
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().collect();
+    let path = args
+        .get(1)
+        .cloned()
+        .unwrap_or_else(|| "../shared/data/rain/dwd_01684_goerlitz_5min_1991-2020.csv".into());
+    let years: f64 = args.get(2).and_then(|a| a.parse().ok()).unwrap_or(100.0);
+    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"));
+    let observed = read_dwd(&text);
+    let steps = (years * 365.25 * 288.0) as usize;
+    let rain: Vec<f64> = observed.iter().copied().cycle().take(steps).collect();
+    let storm = Storm {
+        name: format!("DWD 01684 repeated to {years} years"),
+        dt_s: 300,
+        rain_mm: rain,
+    };
+    eprintln!(
+        "record: {} observed 5-min steps ({:.1} years, {:.0} mm), repeated to {} steps \
+         ({years} years, {:.0} mm)",
+        observed.len(),
+        observed.len() as f64 / 288.0 / 365.25,
+        observed.iter().sum::<f64>(),
+        storm.rain_mm.len(),
+        storm.total_mm()
+    );
+    let src = DEMO_POND.replace("step_s = 10\n", "step_s = 60\n");
+    let pond = pondfile::load_str(&src).unwrap_or_else(|e| panic!("{}", e[0]));
+    if let Some(out) = args.get(3) {
+        write_python_inputs(&pond, &storm, out);
+    }
+    let opts = RunOptions {
+        seed: 1,
+        models: Models::default(),
+        faults: Vec::new(),
+        tail_s: 3600,
+        record_s: 86_400,
+        forecast_at_s: Vec::new(),
+    };
+    for kind in [PolicyKind::Fixed, PolicyKind::Controller] {
+        let t0 = Instant::now();
+        let r = sim::run(&pond, &storm, kind, &opts);
+        let wall = t0.elapsed().as_secs_f64();
+        let sim_s = r.length_s as f64;
+        println!(
+            "{:<10} simulated {:.1} years in {wall:.2} s wall: {:.3e} simulated s per wall s \
+             ({:.0} ns per 60-s step); peak stage {:.3} m, {} events, time over permit {} s",
+            kind.name(),
+            sim_s / 365.25 / 86_400.0,
+            sim_s / wall,
+            wall * 1e9 / (sim_s / 60.0),
+            r.peak_stage_m,
+            r.events.len(),
+            r.time_over_permit_s
+        );
+    }
+}
+
+/// The fixed outlet's table (stage, storage, discharge) and the first year's 1-minute inflow
+/// (the same time–area convolution as the plant) for the Python baseline.
+fn write_python_inputs(pond: &pondfile::Pond, storm: &Storm, out: &str) {
+    use std::fmt::Write as _;
+    let cfg = &pond.config;
+    let ex = pond.existing.as_ref().unwrap_or(cfg.outlet());
+    let mut s = String::from("stage_m,storage_m3,discharge_m3s\n");
+    let (lo, hi) = (cfg.storage().floor_m(), cfg.levels().crest_m + 1.0);
+    for i in 0..=2000 {
+        let h = lo + (hi - lo) * i as f32 / 2000.0;
+        let _ = writeln!(
+            s,
+            "{h},{},{}",
+            cfg.storage().storage_m3(h),
+            ex.discharge_m3s(h, 0.0)
+        );
+    }
+    std::fs::write(format!("{out}.rating.csv"), s).unwrap_or_else(|e| panic!("{out}: {e}"));
+    let n = 365 * 1440;
+    let rain: Vec<f32> = storm
+        .rain_mm
+        .iter()
+        .flat_map(|d| std::iter::repeat_n((*d / 5.0) as f32, 5))
+        .take(n)
+        .collect();
+    let mut q = vec![0.0f32; n];
+    cfg.catchment().convolve(&rain, &mut q);
+    let mut s = String::from("inflow_m3s\n");
+    for x in q {
+        let _ = writeln!(s, "{x}");
+    }
+    std::fs::write(format!("{out}.inflow.csv"), s).unwrap_or_else(|e| panic!("{out}: {e}"));
+}
