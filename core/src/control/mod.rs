@@ -56,7 +56,7 @@
 //!
 //! | mode | entered when | left when | opening |
 //! |---|---|---|---|
-//! | Standby | at the normal level with no rain | rain counted → Capture; stage above the normal band without rain → Drawdown | closed at or below normal, permit target above |
+//! | Standby | at the normal level with no rain | rain counted → Capture; stage above the normal band by more than [`standby_hysteresis_m`] without rain → Drawdown | closed at or below normal, permit target above |
 //! | Capture | rain counted | no rain for `inter_event_s`, or no rain for [`QUIET_S`] and the forecast brings < 1 % of the stored volume → Drawdown | permit target (closed at or below normal) |
 //! | Drawdown | the storm is over | back within [`NORMAL_BAND_M`] of normal → Standby; rain → Capture | paced release (see 4) |
 //! | Surcharge | forecast at the permit target (anywhere in the horizon), or the stage, over crest − freeboard | forecast at the target holds again and the stage is under the limit → automatic mode | cap from `release_to_hold` (≤ the permit margin while the crossing is further than [`SURCHARGE_LEAD_S`]), full open if infeasible; opening moves are urgent |
@@ -133,6 +133,22 @@ pub const TREND_S: u32 = 60;
 pub const RISE_M: f32 = 0.002;
 /// Within this of the normal level counts as "at normal", m (common practice, no source).
 pub const NORMAL_BAND_M: f32 = 0.02;
+
+/// Least hysteresis between leaving Drawdown for Standby (stage back within
+/// [`NORMAL_BAND_M`]) and leaving Standby for Drawdown again, m.
+pub const MIN_STANDBY_HYSTERESIS_M: f32 = 0.01;
+
+/// Hysteresis above the normal band before Standby gives way to Drawdown: the larger of
+/// [`MIN_STANDBY_HYSTERESIS_M`] and four times the stage sensor's noise (a 4σ margin, so noise
+/// alone crosses it about once in 30 000 readings; common practice, no source), m.
+pub fn standby_hysteresis_m(cfg: &PondConfig) -> f32 {
+    let n = 4.0 * cfg.sensors().noise_m;
+    if n > MIN_STANDBY_HYSTERESIS_M {
+        n
+    } else {
+        MIN_STANDBY_HYSTERESIS_M
+    }
+}
 /// Surcharge goes above the permit only when the forecast at the permit target crosses
 /// crest − freeboard within this time (or the rain already fallen crosses it); a crossing
 /// further out uses the permit margin only. Chosen on the demo storms (holds the Ashby
@@ -761,6 +777,8 @@ impl Controller {
             .last_rain_s
             .is_some_and(|t| now_s.saturating_sub(t) < cfg.control().inter_event_s);
         let above_normal = stage_m.is_some_and(|h| h > normal_m + NORMAL_BAND_M);
+        let well_above_normal =
+            stage_m.is_some_and(|h| h > normal_m + NORMAL_BAND_M + standby_hysteresis_m(cfg));
         let active = raining_recently
             || self.runoff_inflow_m3s > 0.0
             || above_normal
@@ -794,6 +812,7 @@ impl Controller {
             dry_inter_event: !raining_recently,
             no_more_inflow: self.fc.no_more_inflow,
             above_normal,
+            well_above_normal,
         };
         if let Some((to, reason)) = transition(self.mode, &cond) {
             self.set_mode(to, reason, now_s);

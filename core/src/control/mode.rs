@@ -124,6 +124,10 @@ pub struct Conditions {
     pub no_more_inflow: bool,
     /// The stage is above the normal band.
     pub above_normal: bool,
+    /// The stage is above the normal band by more than the hysteresis
+    /// ([`super::standby_hysteresis_m`]): what it takes to leave Standby for Drawdown, so that
+    /// a pond drained to the band's edge does not flap between the two on sensor noise.
+    pub well_above_normal: bool,
 }
 
 /// The automatic mode for the conditions, used when leaving Failsafe, Surcharge or Manual.
@@ -197,7 +201,7 @@ pub fn transition(mode: Mode, c: &Conditions) -> Option<(Mode, ModeReason)> {
         Mode::Standby => {
             if c.rain_now {
                 Some((Mode::Capture, ModeReason::RainStarted))
-            } else if c.above_normal {
+            } else if c.well_above_normal {
                 Some((Mode::Drawdown, ModeReason::StageAboveNormal))
             } else {
                 None
@@ -257,6 +261,24 @@ mod tests {
         assert_eq!(
             transition(Mode::Drawdown, &c),
             Some((Mode::Standby, ModeReason::BackToNormal))
+        );
+    }
+
+    /// Back in Standby at the edge of the normal band, a reading just above the band (noise)
+    /// does not restart Drawdown; only a rise past the hysteresis does.
+    #[test]
+    fn standby_does_not_flap_at_the_band_edge() {
+        let mut c = Conditions {
+            dry_inter_event: true,
+            no_more_inflow: true,
+            above_normal: true,
+            ..Conditions::default()
+        };
+        assert_eq!(transition(Mode::Standby, &c), None);
+        c.well_above_normal = true;
+        assert_eq!(
+            transition(Mode::Standby, &c),
+            Some((Mode::Drawdown, ModeReason::StageAboveNormal))
         );
     }
 
