@@ -127,8 +127,6 @@ pub struct Summary {
     pub exceed_s: u32,
     /// Time with the release over the permit while the stage was below crest − freeboard, s.
     pub exceed_below_limit_s: u32,
-    /// Volume released above the permit, `Σ max(0, released − permit·dt)` per step, m³.
-    pub exceed_m3: f32,
     /// From the end of rain to back within the normal band, s (None: not within the run).
     pub drawdown_s: Option<u32>,
     /// Stage reached the crest.
@@ -357,7 +355,6 @@ pub fn run(
         stage = r.stage_m;
         t += step_s;
         let q = r.outflow_m3s;
-        sum.exceed_m3 += (r.released_m3 - permit * step_s as f32).max(0.0);
         if r.stage_m > sum.peak_stage_m {
             sum.peak_stage_m = r.stage_m;
             sum.peak_storage_m3 = r.storage_m3;
@@ -388,51 +385,28 @@ pub fn run(
     (sum, trace)
 }
 
-/// The perfect-foresight schedule at one release cap over a whole storm.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Bound {
-    /// Highest stage, m.
-    pub peak_stage_m: f32,
-    /// Storage at the highest stage, m³.
-    pub peak_storage_m3: f32,
-    /// Volume released above the permit, `Σ max(0, released − permit·dt)` per step, m³.
-    pub exceed_m3: f32,
-}
-
 /// Perfect-foresight schedule at release cap `cap_m3s` over the whole storm (DESIGN.md: total
-/// release = min(cap, full-open capacity) from the first drop), routed at the control step
-/// with [`step_capped`], 6 h of recession after the rain.
-pub fn bound(cfg: &PondConfig, rain_mm: &[f32], cap_m3s: f32) -> Bound {
+/// release = min(cap, full-open capacity) from the first drop), routed at the control step.
+/// Returns (peak stage, peak storage).
+pub fn perfect_foresight(cfg: &PondConfig, rain_mm: &[f32], cap_m3s: f32) -> (f32, f32) {
     let dt_r = cfg.catchment().dt_s();
     let step_s = cfg.control().step_s;
-    let permit = cfg.permit().release_m3s;
     let inflow = inflow_of(cfg, rain_mm, 6 * 3600 / dt_r as usize);
     let pond = cfg.storage();
     let mut s = pond.storage_m3(cfg.levels().normal_m);
-    let mut b = Bound {
-        peak_stage_m: cfg.levels().normal_m,
-        peak_storage_m3: s,
-        exceed_m3: 0.0,
-    };
+    let (mut peak_h, mut peak_s) = (cfg.levels().normal_m, s);
     let per = dt_r / step_s;
     for q in &inflow {
         for _ in 0..per {
             let r = step_capped(pond, cfg.outlet(), s, Inflow::steady(*q), cap_m3s, step_s);
             s = r.storage_m3;
-            b.exceed_m3 += (r.released_m3 - permit * step_s as f32).max(0.0);
-            if r.stage_m > b.peak_stage_m {
-                b.peak_stage_m = r.stage_m;
-                b.peak_storage_m3 = r.storage_m3;
+            if r.stage_m > peak_h {
+                peak_h = r.stage_m;
+                peak_s = r.storage_m3;
             }
         }
     }
-    b
-}
-
-/// [`bound`]'s (peak stage, peak storage).
-pub fn perfect_foresight(cfg: &PondConfig, rain_mm: &[f32], cap_m3s: f32) -> (f32, f32) {
-    let b = bound(cfg, rain_mm, cap_m3s);
-    (b.peak_stage_m, b.peak_storage_m3)
+    (peak_h, peak_s)
 }
 
 /// The smallest constant cap ≥ the permit whose perfect-foresight peak stays at or below the

@@ -72,15 +72,7 @@ fn controller_beats_fixed_outlet_and_threshold_rule() {
                         && s.peak_stage_m <= limit + 0.02
                         && s.drawdown_s.is_some_and(|t| t <= target_dd)
                 };
-                // The needless exceedances listed (and explained) in control_closed_loop.rs's
-                // KNOWN_NEEDLESS: there (b) and (c) must still hold.
-                let known =
-                    name == "ashby_fen" && (label == "block T=10 d=60" || label == "tri T=10 d=60");
-                let ok_c = ok(&sc)
-                    || (known
-                        && sc.peak_stage_m <= limit + 0.02
-                        && sc.drawdown_s.is_some_and(|t| t <= target_dd));
-                assert!(ok_c, "{name} {label}: controller {sc:?}");
+                assert!(ok(&sc), "{name} {label}: controller {sc:?}");
                 for (who, b) in [("fixed", &sf), ("threshold", &st)] {
                     assert!(sc.exceed_s <= b.exceed_s, "{name} {label} vs {who}");
                     assert!(

@@ -13,27 +13,11 @@
 //!
 //! 1. **Never overtop when avoidable.** A forecast ([`crate::forecast`]) at the permit target
 //!    runs every `forecast_every_s` while anything is happening (rain in the inter-event time,
-//!    runoff arriving, stage above the normal band). When it crosses crest − freeboard
-//!    anywhere in the horizon, or the measured stage is there, the mode is Surcharge and the
-//!    release cap is [`release_to_hold`]'s: the least constant release that holds the limit
-//!    over the forecast (what the perfect-foresight bound does), full open when even that
-//!    does not hold. The cap is re-worked with every forecast and the mode goes back to the
-//!    permit as soon as the forecast at the permit target holds. Above the permit itself the
-//!    cap goes only when the crossing is within [`SURCHARGE_LEAD_S`], or when the runoff of
-//!    the rain already fallen (no future rain: a lower bound) crosses the limit at the target;
-//!    a crossing further out uses the permit margin only (cap ≤ midway between target and
-//!    permit). A release above the permit logs `PermitExceedance` with its reason and raises
-//!    [`Alarms::PERMIT_EXCEEDED`].
-//!
-//!    Future rain (documented choice): the lower of the [`PERSIST_SHORT_S`] and
-//!    [`PERSIST_WINDOW_S`] mean intensities persists for `min(persistence_s, time since the
-//!    event began)` (at least [`PERSIST_SHORT_S`]): a storm is taken to go on at most as long
-//!    again as it has lasted, and the shorter window catches a falling storm, so the forecast
-//!    is less biased high after a storm's peak. Measured on the closed-loop storms
-//!    (`tests/tests/control_closed_loop.rs`): the 100-year hour block on the Ashby pond is
-//!    held (51.852 m, limit 51.85 m); two 10-year hour storms there release above the permit
-//!    though the bound at the permit holds (153 and 299 m³ above the permit): the persisted
-//!    rain cannot tell the end of a block from a longer storm.
+//!    runoff arriving, stage above the normal band). When it reaches crest − freeboard within
+//!    [`SURCHARGE_LEAD_S`] (later crossings wait for fresher forecasts), or the
+//!    measured stage is there, the mode is Surcharge and the release cap is
+//!    [`release_to_hold`]'s (full open when even that does not hold). A release above the
+//!    permit logs `PermitExceedance` with its reason and raises [`Alarms::PERMIT_EXCEEDED`].
 //! 2. **Release ≤ permit × (1 − margin)** otherwise: the opening is the outlet rating's
 //!    inverse ([`Outlet::opening_for`]) at the filtered stage for the target, re-evaluated
 //!    every step, at the higher of the filtered and the latest reading carried forward on the
@@ -59,7 +43,7 @@
 //! | Standby | at the normal level with no rain | rain counted → Capture; stage above the normal band by more than [`standby_hysteresis_m`] without rain → Drawdown | closed at or below normal, permit target above |
 //! | Capture | rain counted | no rain for `inter_event_s`, or no rain for [`QUIET_S`] and the forecast brings < 1 % of the stored volume → Drawdown | permit target (closed at or below normal) |
 //! | Drawdown | the storm is over | back within [`NORMAL_BAND_M`] of normal → Standby; rain → Capture | paced release (see 4) |
-//! | Surcharge | forecast at the permit target (anywhere in the horizon), or the stage, over crest − freeboard | forecast at the target holds again and the stage is under the limit → automatic mode | cap from `release_to_hold` (≤ the permit margin while the crossing is further than [`SURCHARGE_LEAD_S`]), full open if infeasible; opening moves are urgent |
+//! | Surcharge | forecast at the permit target, or the stage, over crest − freeboard | forecast holds again and the stage is under the limit → automatic mode | cap from `release_to_hold`, full open if infeasible; moves are urgent |
 //! | Failsafe | a stage fault (not a spike) or any gate fault | every such fault cleared → automatic mode | `max(safe opening, surcharge opening)`; without a trusted stage, full open when the model-estimated pond (last good storage routed with the runoff inflow) is forecast over the limit |
 //! | Manual | a valid `Command::Manual` | `for_s` runs out or `Command::Resume` → automatic mode; Surcharge needed → Surcharge (the override is cancelled) | the operator's opening |
 //!
@@ -120,11 +104,8 @@ pub const MAX_EVENTS_PER_STEP: usize = 8;
 pub const EVENT_QUEUE: usize = 32;
 /// Rain records the controller's gauge keeps.
 pub const GAUGE_RECORDS: usize = 64;
-/// Long window of the persisted intensity (the lower of its and [`PERSIST_SHORT_S`]'s mean
-/// persists), s.
+/// Window whose mean intensity the forecast assumes persists, s.
 pub const PERSIST_WINDOW_S: u32 = 900;
-/// Short window of the persisted intensity, and the shortest persistence, s.
-pub const PERSIST_SHORT_S: u32 = 300;
 /// Dry time after which the forecast may end a storm early ("no more inflow"), s.
 pub const QUIET_S: u32 = 900;
 /// Interval of the stage trend (rising stage for the gauge clog check, stage-based inflow), s.
@@ -149,11 +130,10 @@ pub fn standby_hysteresis_m(cfg: &PondConfig) -> f32 {
         MIN_STANDBY_HYSTERESIS_M
     }
 }
-/// Surcharge goes above the permit only when the forecast at the permit target crosses
-/// crest − freeboard within this time (or the rain already fallen crosses it); a crossing
-/// further out uses the permit margin only. Chosen on the demo storms (holds the Ashby
-/// 100-year hour block; 900 s peaked 2.7 cm over the limit), no source, s.
-pub const SURCHARGE_LEAD_S: u32 = 1800;
+/// Surcharge starts when the forecast at the permit target crosses crest − freeboard within
+/// this time; a crossing further out waits for fresher forecasts (the persistence assumption
+/// overestimates a storm near its peak), s.
+pub const SURCHARGE_LEAD_S: u32 = 900;
 /// The permit-following opening is worked out at the stage expected this far ahead on the
 /// current rise (filter delay, gate travel), s.
 pub const LEAD_S: u32 = 60;
@@ -368,7 +348,7 @@ impl Controller {
             gauge: RainGauge::new(
                 &cfg.sensors().gauge,
                 &[
-                    PERSIST_SHORT_S,
+                    300,
                     PERSIST_WINDOW_S,
                     3600,
                     cfg.sensors().gauge.clog_after_s,
@@ -510,21 +490,13 @@ impl Controller {
                 elapsed_s: now_s.saturating_sub(ev.start_s),
                 depth_so_far_mm: ev.depth_mm,
             },
-            _ => {
-                let (i_mm_h, for_s) = self.gauge.as_ref().map_or((0.0, 0), |g| {
-                    let short = g.reading(now_s, PERSIST_SHORT_S).intensity_mm_h;
-                    let long = g.reading(now_s, PERSIST_WINDOW_S).intensity_mm_h;
-                    let elapsed = event.map_or(0, |ev| now_s.saturating_sub(ev.start_s));
-                    (
-                        short.min(long),
-                        c.persistence_s.min(elapsed.max(PERSIST_SHORT_S)),
-                    )
-                });
-                FutureRain::Persist {
-                    intensity_mm_h: i_mm_h,
-                    for_s,
-                }
-            }
+            _ => FutureRain::Persist {
+                intensity_mm_h: self
+                    .gauge
+                    .as_ref()
+                    .map_or(0.0, |g| g.reading(now_s, PERSIST_WINDOW_S).intensity_mm_h),
+                for_s: c.persistence_s,
+            },
         };
         Outlook::from_time_area(
             &self.runoff,
@@ -550,8 +522,6 @@ impl Controller {
         let normal_m = cfg.levels().normal_m;
         let above_m3 = storage_m3 - pond.storage_m3(normal_m);
         if let Some(look) = self.outlook(cfg, now_s, self.faults.active().rain()) {
-            // The forecast at the permit target is release_to_hold's first run: the permit
-            // itself comes back when it holds, so this costs no more than one forecast.
             let p = forecast::predict(
                 pond,
                 outlet,
@@ -560,38 +530,11 @@ impl Controller {
                 Policy::CapRelease { cap_m3s: target },
                 &limits,
             );
-            if let Some(cross_s) = p.first_over_limit_s {
+            if p.first_over_limit_s.is_some_and(|t| t <= SURCHARGE_LEAD_S) {
                 let h = release_to_hold(pond, outlet, storage_m3, &look, &limits);
                 fc.over_limit = true;
+                fc.cap_m3s = h.cap_m3s;
                 fc.feasible = h.feasible;
-                // Rain already fallen (a lower bound on the inflow) overtops at the target:
-                // releasing above the permit is never needless then.
-                let dry_crosses = cross_s > SURCHARGE_LEAD_S
-                    && Outlook::from_time_area(
-                        &self.runoff,
-                        &FutureRain::Dry,
-                        None,
-                        cfg.control().forecast_step_s,
-                        cfg.control().horizon_s,
-                    )
-                    .ok()
-                    .is_some_and(|dry| {
-                        forecast::predict(
-                            pond,
-                            outlet,
-                            storage_m3,
-                            &dry,
-                            Policy::CapRelease { cap_m3s: target },
-                            &limits,
-                        )
-                        .first_over_limit_s
-                        .is_some()
-                    });
-                fc.cap_m3s = if h.feasible && cross_s > SURCHARGE_LEAD_S && !dry_crosses {
-                    h.cap_m3s.min(0.5 * (target + cfg.permit().release_m3s))
-                } else {
-                    h.cap_m3s
-                };
             }
             let quiet = self
                 .last_rain_s
