@@ -230,6 +230,7 @@ fn fleet_data(store: &mut Store) -> Result<(Vec<Pond>, Vec<storm::StormSummary>,
 /// Import every file of a demo (or any) folder layout: pond files first, then dumps whose
 /// parent folder names the device.
 pub fn import_tree(store: &mut Store, ponds: &[PathBuf], dumps: &[PathBuf], o: &ReadOptions) -> Result<bool, ReviewError> {
+    store.set_deferred(true)?;
     for p in ponds {
         store.put_pond(&Pond::load(p)?)?;
     }
@@ -241,6 +242,7 @@ pub fn import_tree(store: &mut Store, ponds: &[PathBuf], dumps: &[PathBuf], o: &
             store.import(&log, &d.display().to_string(), log.device.clone().or(dev.clone()).as_deref())?;
         }
     }
+    store.set_deferred(false)?;
     Ok(any)
 }
 

@@ -93,6 +93,12 @@ enum Backend {
 /// An open fleet store.
 pub struct Store {
     db: Backend,
+    /// Schema version of the open store (derived tables exist from 2 on).
+    at: i64,
+    /// Summaries wait for [`Store::set_deferred`]`(false)`.
+    deferred: bool,
+    /// Ponds whose summaries are out of date while deferred.
+    dirty: std::collections::BTreeSet<String>,
     /// How storms are summarised.
     pub options: SummaryOptions,
 }
@@ -177,6 +183,9 @@ impl Store {
         };
         let mut s = Store {
             db,
+            at: 0,
+            deferred: false,
+            dirty: Default::default(),
             options: SummaryOptions::default(),
         };
         s.migrate(version)?;
@@ -216,9 +225,11 @@ impl Store {
             self.in_tx(|s| s.batch(&v1_ddl(blob)))?;
             v = 1;
         }
+        self.at = v;
         if v == 1 && target >= 2 {
             self.in_tx(|s| {
                 s.batch(V2_DDL)?;
+                s.at = 2;
                 // Fill the derived tables from the stored records.
                 for pond in s.ponds()? {
                     s.resummarise(&pond)?;
@@ -336,6 +347,23 @@ impl Store {
         })
     }
 
+    /// Defer summaries while importing many files (`true`); turning it off summarises every
+    /// pond that changed meanwhile, once.
+    pub fn set_deferred(&mut self, on: bool) -> Result<(), ReviewError> {
+        self.deferred = on;
+        if !on {
+            let dirty = std::mem::take(&mut self.dirty);
+            let ponds = self.ponds()?;
+            self.in_tx(|s| {
+                for p in ponds.iter().filter(|p| dirty.contains(&p.info.pond_id)) {
+                    s.resummarise(p)?;
+                }
+                Ok(())
+            })?;
+        }
+        Ok(())
+    }
+
     /// Every registered pond, by id.
     pub fn ponds(&mut self) -> Result<Vec<Pond>, ReviewError> {
         let rows = self.query("SELECT pond_id, info_json FROM ponds ORDER BY pond_id", &[])?;
@@ -402,6 +430,7 @@ impl Store {
                 )?;
             }
             let storms = match s.pond(&dev)? {
+                Some(_) if s.at < 2 => None,
                 Some(p) => {
                     if new > 0 {
                         s.resummarise(&p)?;
@@ -501,6 +530,13 @@ impl Store {
     /// Summarise a pond again from all its stored records (and stored rain, when the log has
     /// none); replaces its storms, health and wear rows.
     pub fn resummarise(&mut self, pond: &Pond) -> Result<(), ReviewError> {
+        if self.at < 2 {
+            return Ok(());
+        }
+        if self.deferred {
+            self.dirty.insert(pond.info.pond_id.clone());
+            return Ok(());
+        }
         let id = pond.info.pond_id.clone();
         let records = self.records(&id)?;
         let rain = self.rain(&id)?;

@@ -426,6 +426,23 @@ fn split(records: &[EventRecord], pond: &Pond, opts: &SummaryOptions) -> Vec<(us
     let mut left_standby = false;
     let mut depth = 0.0f32;
     for (i, r) in records.iter().enumerate() {
+        // First: does the time of this record close the open storm (state so far)?
+        if let Some(a) = open {
+            let dry_since = last_rain.unwrap_or(records[a].time_s);
+            if let Some(bs) = back_standby
+                && r.time_s.saturating_sub(dry_since) >= inter
+                && r.time_s > bs
+            {
+                // The storm ends at the later of the return to Standby and the last rain:
+                // the end of drawdown.
+                let end_t = bs.max(dry_since);
+                let b = a + records[a..i].partition_point(|x| x.time_s <= end_t);
+                if left_standby || depth >= opts.min_depth_mm {
+                    out.push((a, b.max(a + 1), true));
+                }
+                open = None;
+            }
+        }
         match r.body {
             EventBody::ModeChange { to, .. } => mode = to,
             EventBody::Sample { mode: m, .. } => mode = m,
@@ -439,7 +456,9 @@ fn split(records: &[EventRecord], pond: &Pond, opts: &SummaryOptions) -> Vec<(us
             back_standby = None;
             last_rain = None;
         }
-        let Some(a) = open else { continue };
+        if open.is_none() {
+            continue;
+        }
         if let EventBody::RainTotal { depth_mm, .. } = r.body
             && depth_mm > 0.0
         {
@@ -451,20 +470,6 @@ fn split(records: &[EventRecord], pond: &Pond, opts: &SummaryOptions) -> Vec<(us
         } else {
             left_standby = true;
             back_standby = None;
-        }
-        let dry_since = last_rain.unwrap_or(records[a].time_s);
-        if let Some(bs) = back_standby
-            && r.time_s.saturating_sub(dry_since) >= inter
-            && r.time_s > bs
-        {
-            // Close: include records up to the later of the return to Standby and the last
-            // rain, so the storm's end is the end of drawdown.
-            let end_t = bs.max(dry_since);
-            let b = records[..=i].partition_point(|x| x.time_s <= end_t);
-            if left_standby || depth >= opts.min_depth_mm {
-                out.push((a, b.max(a + 1), true));
-            }
-            open = None;
         }
     }
     if let Some(a) = open
@@ -608,7 +613,11 @@ fn summarise_one(
 ) -> StormSummary {
     let info = &pond.info;
     let permit = info.permit_m3s;
-    let start_s = recs.first().map_or(0, |r| r.time_s);
+    // A storm opened by rain starts when that rain interval started.
+    let start_s = recs.first().map_or(0, |r| match r.body {
+        EventBody::RainTotal { window_s, .. } => r.time_s.saturating_sub(window_s),
+        _ => r.time_s,
+    });
     let end_s = recs.last().map_or(start_s, |r| r.time_s);
     let mut samples: Vec<Sample> = Vec::new();
     let mut modes: Vec<(u32, String)> = Vec::new();
