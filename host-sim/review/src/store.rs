@@ -690,7 +690,7 @@ impl Store {
     pub fn freeboard_vs_return_period(&mut self) -> Result<Vec<FreeboardRow>, ReviewError> {
         let rows = self.query(
             "SELECT pond_id, start_s, rp_key, rp_text, rp_duration_min, freeboard_used_frac, freeboard_left_m
-             FROM storms ORDER BY rp_key DESC, pond_id, start_s",
+             FROM storms ORDER BY (rp_key IS NULL), rp_key DESC, pond_id, start_s",
             &[],
         )?;
         Ok(rows
