@@ -13,8 +13,7 @@
 use std::path::Path;
 
 use holdback_core::event::{
-    AlarmKind, EventBody, EventRecord, ExceedReason, FaultKind, FaultSource, HealthFlags,
-    ModeCode,
+    AlarmKind, EventBody, EventRecord, ExceedReason, FaultKind, FaultSource, HealthFlags, ModeCode,
 };
 use holdback_firmware::eventlog::{EventLog, SamplePolicy};
 
@@ -58,7 +57,9 @@ const FIRST: [&str; 24] = [
     "Kestrel", "Larch", "Marsh", "Nettle", "Osier", "Plover", "Quill", "Rook", "Sedge", "Teal",
     "Umber", "Vetch", "Wren", "Yarrow",
 ];
-const SECOND: [&str; 8] = ["brook", "field", "mead", "lane", "hollow", "croft", "moor", "gate"];
+const SECOND: [&str; 8] = [
+    "brook", "field", "mead", "lane", "hollow", "croft", "moor", "gate",
+];
 
 /// What is injected into a demo pond's life.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -92,7 +93,15 @@ pub struct DemoPond {
 
 /// The demo IDF: Talbot curves with invented coefficients (demo data, not a site's IDF).
 pub fn demo_idf() -> IdfSpec {
-    let rows = [(1.0, 1400.0), (2.0, 1800.0), (5.0, 2350.0), (10.0, 2750.0), (25.0, 3300.0), (50.0, 3700.0), (100.0, 4100.0)];
+    let rows = [
+        (1.0, 1400.0),
+        (2.0, 1800.0),
+        (5.0, 2350.0),
+        (10.0, 2750.0),
+        (25.0, 3300.0),
+        (50.0, 3700.0),
+        (100.0, 4100.0),
+    ];
     IdfSpec::Curves {
         curves: rows
             .iter()
@@ -124,12 +133,20 @@ pub fn fleet(n: usize, seed: u64) -> Result<Vec<DemoPond>, ReviewError> {
             let catchment = rng.range(40_000.0, 250_000.0) * rng.range(0.4, 0.8);
             // Some ponds are undersized on purpose, so that exceedances show up.
             let undersized = rng.f64() < 0.25;
-            let depth = if undersized { rng.range(1.0, 1.4) } else { rng.range(1.6, 2.4) };
+            let depth = if undersized {
+                rng.range(1.0, 1.4)
+            } else {
+                rng.range(1.6, 2.4)
+            };
             let normal = 0.3;
             let permit = (catchment / 10_000.0) * rng.range(0.004, 0.010);
             let crest = normal + depth;
             let troubles = Troubles {
-                drift_m_per_year: if rng.f64() < 0.2 { rng.range(0.06, 0.2) } else { rng.range(0.0, 0.01) },
+                drift_m_per_year: if rng.f64() < 0.2 {
+                    rng.range(0.06, 0.2)
+                } else {
+                    rng.range(0.0, 0.01)
+                },
                 clog_chance: if rng.f64() < 0.2 { 0.3 } else { 0.0 },
                 stall_chance: if rng.f64() < 0.15 { 0.2 } else { 0.02 },
             };
@@ -172,14 +189,22 @@ pub fn rain_year(rng: &mut Rng, start_s: u32, days: u32) -> Vec<(u32, f32)> {
     let mut t = start_s as f64 + rng.exp(9.0 * 86_400.0);
     while t < end as f64 {
         let big = rng.f64() < 0.04;
-        let depth = if big { rng.range(45.0, 110.0) } else { rng.exp(11.0) + 2.0 };
+        let depth = if big {
+            rng.range(45.0, 110.0)
+        } else {
+            rng.exp(11.0) + 2.0
+        };
         let dur_steps = (rng.range(1.0, 10.0) * 12.0).round().max(2.0) as u32;
         let peak_at = rng.range(0.15, 0.6);
         let t0 = (t as u32) / 300 * 300;
         let mut weights: Vec<f64> = (0..dur_steps)
             .map(|k| {
                 let x = (k as f64 + 0.5) / dur_steps as f64;
-                let tri = if x < peak_at { x / peak_at } else { (1.0 - x) / (1.0 - peak_at) };
+                let tri = if x < peak_at {
+                    x / peak_at
+                } else {
+                    (1.0 - x) / (1.0 - peak_at)
+                };
                 tri.max(0.0).powf(if big { 2.5 } else { 1.5 }) + 0.02
             })
             .collect();
@@ -229,7 +254,11 @@ impl MemorySink {
     }
     fn push(&mut self, t: u32, body: EventBody) {
         let seq = self.records.len() as u32;
-        self.records.push(EventRecord { seq, time_s: t, body });
+        self.records.push(EventRecord {
+            seq,
+            time_s: t,
+            body,
+        });
     }
 }
 
@@ -278,8 +307,12 @@ impl FirmwareSink {
         let flash = self.log.release();
         let image = flash.image().to_vec();
         let pages = image.len() / 4096;
-        let log = EventLog::new(flash, 0..(pages * 4096) as u32, SamplePolicy::new(DRY_EVERY))
-            .map_err(log_err)?;
+        let log = EventLog::new(
+            flash,
+            0..(pages * 4096) as u32,
+            SamplePolicy::new(DRY_EVERY),
+        )
+        .map_err(log_err)?;
         if log.next_seq() != next {
             return Err(ReviewError::Usage(format!(
                 "demo event log: reopened at seq {} instead of {next}",
@@ -302,7 +335,14 @@ impl Sink for FirmwareSink {
     }
 }
 
-fn sample_body(stage: f64, storage: f64, q: f64, opening: f64, mode: ModeCode, health: u8) -> EventBody {
+fn sample_body(
+    stage: f64,
+    storage: f64,
+    q: f64,
+    opening: f64,
+    mode: ModeCode,
+    health: u8,
+) -> EventBody {
     EventBody::Sample {
         stage_m: stage as f32,
         storage_m3: storage as f32,
@@ -353,7 +393,13 @@ pub fn simulate<S: Sink>(
             {
                 let logged = if clogged { 0.0 } else { mm };
                 if logged > 0.0 {
-                    sink.event(end, EventBody::RainTotal { window_s: 300, depth_mm: logged })?;
+                    sink.event(
+                        end,
+                        EventBody::RainTotal {
+                            window_s: 300,
+                            depth_mm: logged,
+                        },
+                    )?;
                 }
             }
             while rain.get(ri).is_some_and(|r| r.0 <= t) {
@@ -379,7 +425,13 @@ pub fn simulate<S: Sink>(
                 clog_reported = false;
                 if rng.f64() < p.troubles.stall_chance {
                     stall_until = t + rng.range(1800.0, 4.0 * 3600.0) as u32;
-                    sink.event(t, EventBody::FaultRaised { source: FaultSource::GateActuator, kind: FaultKind::Stall })?;
+                    sink.event(
+                        t,
+                        EventBody::FaultRaised {
+                            source: FaultSource::GateActuator,
+                            kind: FaultKind::Stall,
+                        },
+                    )?;
                 }
             }
             last_rain_t = Some(t);
@@ -404,7 +456,14 @@ pub fn simulate<S: Sink>(
             m => m,
         };
         if new_mode != mode {
-            sink.event(t, EventBody::ModeChange { from: mode, to: new_mode, reason: 0 })?;
+            sink.event(
+                t,
+                EventBody::ModeChange {
+                    from: mode,
+                    to: new_mode,
+                    reason: 0,
+                },
+            )?;
             mode = new_mode;
         }
         let head = (stage - floor).max(0.0);
@@ -418,14 +477,35 @@ pub fn simulate<S: Sink>(
         if (want - opening).abs() >= 0.02 && t >= stall_until {
             let step = (want - opening).clamp(-0.1, 0.1);
             opening = (opening + step).clamp(0.0, 1.0);
-            sink.event(t, EventBody::Decision { target_release_m3s: (permit * 0.95) as f32, opening_cmd: opening as f32 })?;
+            sink.event(
+                t,
+                EventBody::Decision {
+                    target_release_m3s: (permit * 0.95) as f32,
+                    opening_cmd: opening as f32,
+                },
+            )?;
         }
         if t == stall_until && stall_until > 0 {
-            sink.event(t, EventBody::FaultCleared { source: FaultSource::GateActuator, kind: FaultKind::Stall })?;
+            sink.event(
+                t,
+                EventBody::FaultCleared {
+                    source: FaultSource::GateActuator,
+                    kind: FaultKind::Stall,
+                },
+            )?;
         }
         let stalled_open = t < stall_until;
-        let gate_q = cap_full * if stalled_open { opening.max(0.6) } else { opening };
-        let spill = if stage > crest { 1.7 * 3.0 * (stage - crest).powf(1.5) } else { 0.0 };
+        let gate_q = cap_full
+            * if stalled_open {
+                opening.max(0.6)
+            } else {
+                opening
+            };
+        let spill = if stage > crest {
+            1.7 * 3.0 * (stage - crest).powf(1.5)
+        } else {
+            0.0
+        };
         let q = (gate_q + spill).min(v / 60.0 + inflow);
         v = (v + (inflow - q) * 60.0).max(0.0);
         if q > permit && t - last_exceed_log >= 600 {
@@ -436,29 +516,61 @@ pub fn simulate<S: Sink>(
             } else {
                 ExceedReason::Surcharge
             };
-            sink.event(t, EventBody::PermitExceedance { release_m3s: q as f32, permit_m3s: permit as f32, reason })?;
+            sink.event(
+                t,
+                EventBody::PermitExceedance {
+                    release_m3s: q as f32,
+                    permit_m3s: permit as f32,
+                    reason,
+                },
+            )?;
             last_exceed_log = t;
         }
         for (i, (on, kind, value)) in [
             (stage > limit - 0.1, AlarmKind::HighStage, stage),
-            (crest - stage < f64::from(info.freeboard_min_m), AlarmKind::LowFreeboard, crest - stage),
+            (
+                crest - stage < f64::from(info.freeboard_min_m),
+                AlarmKind::LowFreeboard,
+                crest - stage,
+            ),
             (stage > crest, AlarmKind::Overtopping, stage),
         ]
         .into_iter()
         .enumerate()
         {
             if on && !alarms_on[i] {
-                sink.event(t, EventBody::Alarm { kind, value: value as f32 })?;
+                sink.event(
+                    t,
+                    EventBody::Alarm {
+                        kind,
+                        value: value as f32,
+                    },
+                )?;
             }
             alarms_on[i] = on;
         }
         // Clogged gauge: the stage rises with no rain counted; the device notices after 30 min.
-        if clogged && !clog_reported && mode != ModeCode::Standby && last_rain_t.is_some_and(|l| t - l < 60) && stage > normal + 0.1 {
-            sink.event(t, EventBody::FaultRaised { source: FaultSource::RainGauge, kind: FaultKind::Implausible })?;
+        if clogged
+            && !clog_reported
+            && mode != ModeCode::Standby
+            && last_rain_t.is_some_and(|l| t - l < 60)
+            && stage > normal + 0.1
+        {
+            sink.event(
+                t,
+                EventBody::FaultRaised {
+                    source: FaultSource::RainGauge,
+                    kind: FaultKind::Implausible,
+                },
+            )?;
             clog_reported = true;
         }
         let measured = stage + drift_rate * f64::from(t - start_s) + rng.range(-0.002, 0.002);
-        let health = if clogged && clog_reported { HealthFlags::RAIN } else { 0 } | if stalled_open { HealthFlags::GATE } else { 0 };
+        let health = if clogged && clog_reported {
+            HealthFlags::RAIN
+        } else {
+            0
+        } | if stalled_open { HealthFlags::GATE } else { 0 };
         sink.sample(t, sample_body(measured, v, q, opening, mode, health))?;
         if (k + 1) % 1440 == 0 {
             on_day(k / 1440, sink)?;
@@ -493,9 +605,11 @@ pub fn write_fleet(
         let dd = dir.join("dumps").join(id);
         std::fs::create_dir_all(&dd).map_err(|e| ReviewError::io(&dd, e))?;
         let mut holder = Some(FirmwareSink::new(flash_pages, DRY_EVERY)?);
-        let mut sink = holder.take().ok_or_else(|| ReviewError::Usage("demo sink".into()))?;
+        let mut sink = holder
+            .take()
+            .ok_or_else(|| ReviewError::Usage("demo sink".into()))?;
         let mut dump_at = |day: u32, s: &mut FirmwareSink| -> Result<(), ReviewError> {
-            if (day + 1) % dump_every_days == 0 || day + 1 == days {
+            if (day + 1).is_multiple_of(dump_every_days) || day + 1 == days {
                 let taken = std::mem::replace(s, FirmwareSink::new(2, DRY_EVERY)?);
                 let (image, back) = taken.dump()?;
                 *s = back;

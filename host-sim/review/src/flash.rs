@@ -73,9 +73,14 @@ impl<const READ: usize, const WRITE: usize, const ERASE: usize> VecFlash<READ, W
     > {
         holdback_firmware::eventlog::dump::Geometry::new(READ, WRITE, ERASE)
     }
-    fn range(&self, offset: u32, len: usize, align: usize) -> Result<(usize, usize), VecFlashError> {
+    fn range(
+        &self,
+        offset: u32,
+        len: usize,
+        align: usize,
+    ) -> Result<(usize, usize), VecFlashError> {
         let off = offset as usize;
-        if off % align != 0 || len % align != 0 {
+        if !off.is_multiple_of(align) || !len.is_multiple_of(align) {
             return Err(VecFlashError::NotAligned);
         }
         let end = off.checked_add(len).ok_or(VecFlashError::OutOfBounds)?;
@@ -139,7 +144,10 @@ mod tests {
         let mut f = VecFlash::<1, 4, 256>::new(2);
         assert!(f.image().iter().all(|&b| b == 0xFF));
         f.write(4, &[0x0F, 0xF0, 0xFF, 0x00]).unwrap();
-        assert_eq!(f.write(4, &[0xFF, 0, 0, 0]), Err(VecFlashError::BitSet { offset: 4 }));
+        assert_eq!(
+            f.write(4, &[0xFF, 0, 0, 0]),
+            Err(VecFlashError::BitSet { offset: 4 })
+        );
         assert_eq!(f.write(2, &[0; 4]), Err(VecFlashError::NotAligned));
         assert_eq!(f.write(512, &[0; 4]), Err(VecFlashError::OutOfBounds));
         f.erase(0, 256).unwrap();

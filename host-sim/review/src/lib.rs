@@ -30,8 +30,8 @@ pub mod pond;
 pub mod rain;
 pub mod read;
 pub mod report;
-pub mod storm;
 pub mod store;
+pub mod storm;
 pub mod telemetry;
 pub mod time;
 

@@ -59,9 +59,8 @@ pub fn write_bytes(device: &str, records: &[EventRecord]) -> Result<Vec<u8>, Rev
     out.extend_from_slice(&crc.to_le_bytes());
     let mut buf = [0u8; MAX_FRAME_LEN];
     for r in records {
-        let n = event::encode(r, &mut buf).map_err(|e| {
-            ReviewError::Usage(format!("record seq {}: cannot encode: {e}", r.seq))
-        })?;
+        let n = event::encode(r, &mut buf)
+            .map_err(|e| ReviewError::Usage(format!("record seq {}: cannot encode: {e}", r.seq)))?;
         out.extend_from_slice(&buf[..n]);
     }
     Ok(out)
@@ -86,20 +85,28 @@ pub fn header(bytes: &[u8], path: &Path) -> Result<Header, ReviewError> {
         what,
     };
     if !looks_like(bytes) {
-        return Err(fail(0, "magic: not an exported log file (\"HBLOG01\\n\")".into()));
+        return Err(fail(
+            0,
+            "magic: not an exported log file (\"HBLOG01\\n\")".into(),
+        ));
     }
-    let (Some(&h0), Some(&h1), Some(&dev_len)) = (bytes.get(8), bytes.get(9), bytes.get(10))
-    else {
+    let (Some(&h0), Some(&h1), Some(&dev_len)) = (bytes.get(8), bytes.get(9), bytes.get(10)) else {
         return Err(fail(8, "header truncated".into()));
     };
     let header_len = usize::from(u16::from_le_bytes([h0, h1]));
     let dev_len = usize::from(dev_len);
     if dev_len == 0 || dev_len > MAX_DEVICE_LEN {
-        return Err(fail(10, format!("dev_len = {dev_len}: must be 1..={MAX_DEVICE_LEN}")));
+        return Err(fail(
+            10,
+            format!("dev_len = {dev_len}: must be 1..={MAX_DEVICE_LEN}"),
+        ));
     }
     let crc_at = 12 + dev_len;
     if header_len < crc_at + 4 {
-        return Err(fail(8, format!("header_len = {header_len}: must be >= {}", crc_at + 4)));
+        return Err(fail(
+            8,
+            format!("header_len = {header_len}: must be >= {}", crc_at + 4),
+        ));
     }
     let Some(crc_bytes) = bytes.get(crc_at..crc_at + 4) else {
         return Err(fail(crc_at, "header truncated".into()));
@@ -113,7 +120,10 @@ pub fn header(bytes: &[u8], path: &Path) -> Result<Header, ReviewError> {
         ));
     }
     if bytes.len() < header_len {
-        return Err(fail(bytes.len(), format!("header_len = {header_len}: file shorter")));
+        return Err(fail(
+            bytes.len(),
+            format!("header_len = {header_len}: file shorter"),
+        ));
     }
     let device = std::str::from_utf8(&bytes[12..crc_at])
         .map_err(|e| fail(12, format!("device id: not UTF-8: {e}")))?

@@ -202,10 +202,16 @@ impl Pond {
         pos("normal_tolerance_m", info.normal_tolerance_m)?;
         pos("wear.travel_per_year", info.wear.travel_per_year)?;
         if info.drawdown_target_s == 0 || info.wear.moves_per_year == 0 {
-            return Err(bad(&o, "drawdown_target_s and wear.moves_per_year: must be > 0".into()));
+            return Err(bad(
+                &o,
+                "drawdown_target_s and wear.moves_per_year: must be > 0".into(),
+            ));
         }
         if !(info.freeboard_min_m.is_finite() && info.freeboard_min_m >= 0.0) {
-            return Err(bad(&o, format!("freeboard_min_m = {}: must be >= 0", info.freeboard_min_m)));
+            return Err(bad(
+                &o,
+                format!("freeboard_min_m = {}: must be >= 0", info.freeboard_min_m),
+            ));
         }
         if !(info.normal_m.is_finite()
             && info.crest_m.is_finite()
@@ -213,7 +219,10 @@ impl Pond {
         {
             return Err(bad(
                 &o,
-                format!("normal_m = {}: must be below crest_m - freeboard_min_m", info.normal_m),
+                format!(
+                    "normal_m = {}: must be below crest_m - freeboard_min_m",
+                    info.normal_m
+                ),
             ));
         }
         let idf = info.idf.build().map_err(|e| bad(&o, e))?;

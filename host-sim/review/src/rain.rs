@@ -76,7 +76,10 @@ pub fn parse_csv(text: &str, path: &Path) -> Result<Vec<RainInterval>, ReviewErr
         };
         if !header_seen {
             if line.replace(' ', "") != "time_s,window_s,depth_mm" {
-                return Err(err("header", format!("{line:?}: must be time_s,window_s,depth_mm")));
+                return Err(err(
+                    "header",
+                    format!("{line:?}: must be time_s,window_s,depth_mm"),
+                ));
             }
             header_seen = true;
             continue;
@@ -98,7 +101,10 @@ pub fn parse_csv(text: &str, path: &Path) -> Result<Vec<RainInterval>, ReviewErr
             .parse()
             .map_err(|e| err("depth_mm", format!("{:?}: {e}", cols[2])))?;
         if !(depth_mm.is_finite() && depth_mm >= 0.0) {
-            return Err(err("depth_mm", format!("{depth_mm}: must be a number >= 0")));
+            return Err(err(
+                "depth_mm",
+                format!("{depth_mm}: must be a number >= 0"),
+            ));
         }
         out.push(RainInterval {
             end_s,
@@ -148,7 +154,9 @@ mod tests {
         let bad = "# c\ntime_s,window_s,depth_mm\n600,300,1\n900,300,-2\n";
         let e = parse_csv(bad, Path::new("r.csv")).unwrap_err().to_string();
         assert!(e.contains("r.csv: line 4: field depth_mm"), "{e}");
-        let e = parse_csv("a,b\n", Path::new("r.csv")).unwrap_err().to_string();
+        let e = parse_csv("a,b\n", Path::new("r.csv"))
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("line 1: field header"), "{e}");
     }
 }

@@ -140,8 +140,12 @@ pub fn read_bytes(
 
 fn corruption_text(c: &Corruption) -> String {
     match c {
-        Corruption::PageState => "page state: end marker without start marker (interrupted erase)".into(),
-        Corruption::ItemHeader => "item header failed its length check; rest of page skipped".into(),
+        Corruption::PageState => {
+            "page state: end marker without start marker (interrupted erase)".into()
+        }
+        Corruption::ItemHeader => {
+            "item header failed its length check; rest of page skipped".into()
+        }
         Corruption::ItemLength => "item length runs past the page; rest of page skipped".into(),
         Corruption::ItemData => "item data failed its crc (write cut off or bits flipped)".into(),
         Corruption::Frame(d) => format!("item intact but not an event frame: {d}"),
@@ -187,7 +191,10 @@ pub fn read_dump(image: &[u8], g: Geometry, erase_size: usize) -> DecodedLog {
         log.problems.push(Problem {
             offset: whole,
             len: image.len() - whole,
-            why: format!("truncated page: {} bytes of a {erase_size}-byte page", image.len() - whole),
+            why: format!(
+                "truncated page: {} bytes of a {erase_size}-byte page",
+                image.len() - whole
+            ),
         });
     }
     log
@@ -294,9 +301,19 @@ mod tests {
         assert_eq!(log.problems.len(), 2);
         assert_eq!(log.problems[0].offset, h.header_len + 3 * frame_len);
         assert_eq!(log.problems[0].len, frame_len);
-        assert!(log.problems[1].why.contains("truncated"), "{:?}", log.problems[1]);
+        assert!(
+            log.problems[1].why.contains("truncated"),
+            "{:?}",
+            log.problems[1]
+        );
         assert_eq!(log.problems[1].len, frame_len - 3);
-        assert_eq!(log.gaps(), [Gap { after_seq: 2, missing: 1 }]);
+        assert_eq!(
+            log.gaps(),
+            [Gap {
+                after_seq: 2,
+                missing: 1
+            }]
+        );
     }
 
     /// A broken header is an error naming the file and offset, not a panic.
@@ -306,7 +323,10 @@ mod tests {
         bytes[12] = b'q';
         let e = read_bytes(&bytes, Path::new("f.hblog"), &ReadOptions::default()).unwrap_err();
         let msg = e.to_string();
-        assert!(msg.contains("f.hblog") && msg.contains("offset 13"), "{msg}");
+        assert!(
+            msg.contains("f.hblog") && msg.contains("offset 13"),
+            "{msg}"
+        );
         for n in 0..bytes.len() {
             let _ = read_bytes(&bytes[..n], Path::new("f"), &ReadOptions::default());
         }

@@ -77,12 +77,6 @@ impl Val {
             _ => String::new(),
         }
     }
-    fn b(&self) -> &[u8] {
-        match self {
-            Val::B(b) => b,
-            _ => &[],
-        }
-    }
 }
 
 enum Backend {
@@ -120,13 +114,12 @@ pub struct ImportReport {
     pub storms: Option<usize>,
 }
 
-fn v1_ddl(blob: &str) -> String {
+fn v1_ddl(blob: &str, clustered: &str) -> String {
     format!(
         "CREATE TABLE schema_version (version BIGINT NOT NULL);
 CREATE TABLE ponds (pond_id TEXT PRIMARY KEY, name TEXT NOT NULL, info_json TEXT NOT NULL);
 CREATE TABLE records (device TEXT NOT NULL, seq BIGINT NOT NULL, time_s BIGINT NOT NULL,
-  kind TEXT NOT NULL, frame {blob} NOT NULL, PRIMARY KEY (device, seq));
-CREATE INDEX records_device_time ON records (device, time_s);
+  kind TEXT NOT NULL, frame {blob} NOT NULL, PRIMARY KEY (device, seq)){clustered};
 CREATE TABLE problems (device TEXT NOT NULL, source TEXT NOT NULL, offset_b BIGINT NOT NULL,
   len_b BIGINT NOT NULL, why TEXT NOT NULL, PRIMARY KEY (device, source, offset_b));
 INSERT INTO schema_version (version) VALUES (1);"
@@ -178,7 +171,9 @@ impl Store {
             let path = url.strip_prefix("sqlite:").unwrap_or(url);
             let c = rusqlite::Connection::open(path)
                 .map_err(|e| ReviewError::store(&format!("open SQLite file {path}"), e))?;
-            c.execute_batch("PRAGMA journal_mode=WAL; PRAGMA synchronous=NORMAL;")?;
+            c.execute_batch(
+                "PRAGMA journal_mode=WAL; PRAGMA synchronous=NORMAL; PRAGMA cache_size=-65536;",
+            )?;
             Backend::Sqlite(c)
         };
         let mut s = Store {
@@ -200,7 +195,9 @@ impl Store {
 
     fn has_table(&mut self, name: &str) -> Result<bool, ReviewError> {
         let sql = match self.db {
-            Backend::Sqlite(_) => "SELECT COUNT(*) FROM sqlite_master WHERE type='table' AND name=$1",
+            Backend::Sqlite(_) => {
+                "SELECT COUNT(*) FROM sqlite_master WHERE type='table' AND name=$1"
+            }
             Backend::Pg(_) => {
                 "SELECT COUNT(*) FROM information_schema.tables WHERE table_schema = current_schema() AND table_name=$1"
             }
@@ -210,11 +207,17 @@ impl Store {
     }
 
     fn migrate(&mut self, target: i64) -> Result<(), ReviewError> {
-        let blob = match self.db {
-            Backend::Sqlite(_) => "BLOB",
-            Backend::Pg(_) => "BYTEA",
+        // SQLite keeps records clustered by their key (WITHOUT ROWID): a pond's records
+        // are one range scan.
+        let (blob, clustered) = match self.db {
+            Backend::Sqlite(_) => ("BLOB", " WITHOUT ROWID"),
+            Backend::Pg(_) => ("BYTEA", ""),
         };
-        let mut v = if self.has_table("schema_version")? { self.version()? } else { 0 };
+        let mut v = if self.has_table("schema_version")? {
+            self.version()?
+        } else {
+            0
+        };
         if v > SCHEMA_VERSION {
             return Err(ReviewError::store(
                 "open",
@@ -222,7 +225,7 @@ impl Store {
             ));
         }
         if v == 0 && target >= 1 {
-            self.in_tx(|s| s.batch(&v1_ddl(blob)))?;
+            self.in_tx(|s| s.batch(&v1_ddl(blob, clustered)))?;
             v = 1;
         }
         self.at = v;
@@ -240,7 +243,10 @@ impl Store {
         Ok(())
     }
 
-    fn in_tx<T>(&mut self, f: impl FnOnce(&mut Store) -> Result<T, ReviewError>) -> Result<T, ReviewError> {
+    fn in_tx<T>(
+        &mut self,
+        f: impl FnOnce(&mut Store) -> Result<T, ReviewError>,
+    ) -> Result<T, ReviewError> {
         self.batch("BEGIN")?;
         match f(self) {
             Ok(x) => {
@@ -282,21 +288,22 @@ impl Store {
             Backend::Sqlite(c) => {
                 let mut st = c.prepare_cached(sql)?;
                 let n = st.column_count();
-                let rows = st.query_map(rusqlite::params_from_iter(params.iter().map(sq)), |r| {
-                    (0..n)
-                        .map(|i| {
-                            Ok(match r.get_ref(i)? {
-                                rusqlite::types::ValueRef::Null => Val::Null,
-                                rusqlite::types::ValueRef::Integer(x) => Val::I(x),
-                                rusqlite::types::ValueRef::Real(x) => Val::F(x),
-                                rusqlite::types::ValueRef::Text(t) => {
-                                    Val::T(String::from_utf8_lossy(t).into_owned())
-                                }
-                                rusqlite::types::ValueRef::Blob(b) => Val::B(b.to_vec()),
+                let rows =
+                    st.query_map(rusqlite::params_from_iter(params.iter().map(sq)), |r| {
+                        (0..n)
+                            .map(|i| {
+                                Ok(match r.get_ref(i)? {
+                                    rusqlite::types::ValueRef::Null => Val::Null,
+                                    rusqlite::types::ValueRef::Integer(x) => Val::I(x),
+                                    rusqlite::types::ValueRef::Real(x) => Val::F(x),
+                                    rusqlite::types::ValueRef::Text(t) => {
+                                        Val::T(String::from_utf8_lossy(t).into_owned())
+                                    }
+                                    rusqlite::types::ValueRef::Blob(b) => Val::B(b.to_vec()),
+                                })
                             })
-                        })
-                        .collect::<Result<Vec<Val>, rusqlite::Error>>()
-                })?;
+                            .collect::<Result<Vec<Val>, rusqlite::Error>>()
+                    })?;
                 Ok(rows.collect::<Result<Vec<_>, _>>()?)
             }
             Backend::Pg(c) => {
@@ -313,14 +320,16 @@ impl Store {
                         let x = if *t == Type::INT8 {
                             r.try_get::<_, Option<i64>>(i)?.map_or(Val::Null, Val::I)
                         } else if *t == Type::INT4 {
-                            r.try_get::<_, Option<i32>>(i)?.map_or(Val::Null, |x| Val::I(x.into()))
+                            r.try_get::<_, Option<i32>>(i)?
+                                .map_or(Val::Null, |x| Val::I(x.into()))
                         } else if *t == Type::FLOAT8 {
                             r.try_get::<_, Option<f64>>(i)?.map_or(Val::Null, Val::F)
                         } else if *t == Type::NUMERIC {
                             // SUM over BIGINT is NUMERIC in PostgreSQL; queries cast it back.
                             Val::Null
                         } else if *t == Type::BYTEA {
-                            r.try_get::<_, Option<Vec<u8>>>(i)?.map_or(Val::Null, Val::B)
+                            r.try_get::<_, Option<Vec<u8>>>(i)?
+                                .map_or(Val::Null, Val::B)
                         } else {
                             r.try_get::<_, Option<String>>(i)?.map_or(Val::Null, Val::T)
                         };
@@ -336,7 +345,8 @@ impl Store {
     /// Register or update a pond (its description is kept as JSON). Summaries are made again
     /// from the stored records, since limits may have changed.
     pub fn put_pond(&mut self, pond: &Pond) -> Result<(), ReviewError> {
-        let json = serde_json::to_string(&pond.info).map_err(|e| ReviewError::store("pond json", e))?;
+        let json =
+            serde_json::to_string(&pond.info).map_err(|e| ReviewError::store("pond json", e))?;
         self.in_tx(|s| {
             s.exec(
                 "INSERT INTO ponds (pond_id, name, info_json) VALUES ($1, $2, $3)
@@ -369,10 +379,11 @@ impl Store {
         let rows = self.query("SELECT pond_id, info_json FROM ponds ORDER BY pond_id", &[])?;
         rows.iter()
             .map(|r| {
-                let info: PondInfo = serde_json::from_str(&r[1].t()).map_err(|e| ReviewError::Pond {
-                    origin: r[0].t(),
-                    what: format!("stored description: {e}"),
-                })?;
+                let info: PondInfo =
+                    serde_json::from_str(&r[1].t()).map_err(|e| ReviewError::Pond {
+                        origin: r[0].t(),
+                        what: format!("stored description: {e}"),
+                    })?;
                 Pond::new(info)
             })
             .collect()
@@ -390,7 +401,12 @@ impl Store {
                 n += s.exec(
                     "INSERT INTO rain (device, end_s, window_s, depth_mm) VALUES ($1, $2, $3, $4)
                      ON CONFLICT (device, end_s) DO NOTHING",
-                    &[Val::T(device.into()), Val::I(r.end_s.into()), Val::I(r.window_s.into()), Val::F(r.depth_mm.into())],
+                    &[
+                        Val::T(device.into()),
+                        Val::I(r.end_s.into()),
+                        Val::I(r.window_s.into()),
+                        Val::F(r.depth_mm.into()),
+                    ],
                 )? as usize;
             }
             if n > 0
@@ -405,7 +421,12 @@ impl Store {
 
     /// Import a decoded log. `device` names the device when the source does not (a raw dump);
     /// a source that names a different device is refused.
-    pub fn import(&mut self, log: &DecodedLog, source: &str, device: Option<&str>) -> Result<ImportReport, ReviewError> {
+    pub fn import(
+        &mut self,
+        log: &DecodedLog,
+        source: &str,
+        device: Option<&str>,
+    ) -> Result<ImportReport, ReviewError> {
         let dev = match (device, log.device.as_deref()) {
             (Some(a), Some(b)) if a != b => {
                 return Err(ReviewError::Usage(format!(
@@ -459,35 +480,62 @@ impl Store {
                 .map_err(|e| ReviewError::store("encode record", e))?;
             frames.push((l.record, buf[..n].to_vec()));
         }
-        let mut new = 0usize;
-        match &mut self.db {
-            Backend::Sqlite(c) => {
-                let mut st = c.prepare_cached(
-                    "INSERT INTO records (device, seq, time_s, kind, frame) VALUES (?1, ?2, ?3, ?4, ?5)
-                     ON CONFLICT (device, seq) DO NOTHING",
-                )?;
-                for (r, f) in &frames {
-                    new += st.execute(rusqlite::params![dev, r.seq, r.time_s, kind_name(&r.body), f])?;
+        // Many rows per statement (200: 1000 parameters, under both databases' limits).
+        const ROWS: usize = 200;
+        let sql_for = |n: usize| {
+            let mut sql =
+                String::from("INSERT INTO records (device, seq, time_s, kind, frame) VALUES ");
+            for i in 0..n {
+                let b = i * 5;
+                if i > 0 {
+                    sql.push(',');
                 }
+                sql.push_str(&format!(
+                    "(${},${},${},${},${})",
+                    b + 1,
+                    b + 2,
+                    b + 3,
+                    b + 4,
+                    b + 5
+                ));
             }
-            Backend::Pg(c) => {
-                for chunk in frames.chunks(1000) {
-                    let mut sql = String::from("INSERT INTO records (device, seq, time_s, kind, frame) VALUES ");
-                    let mut params: Vec<Box<dyn postgres::types::ToSql + Sync>> = Vec::new();
-                    for (i, (r, f)) in chunk.iter().enumerate() {
-                        let b = i * 5;
-                        if i > 0 {
-                            sql.push(',');
-                        }
-                        sql.push_str(&format!("(${},${},${},${},${})", b + 1, b + 2, b + 3, b + 4, b + 5));
+            sql.push_str(" ON CONFLICT (device, seq) DO NOTHING");
+            sql
+        };
+        let full = sql_for(ROWS);
+        let mut new = 0usize;
+        for chunk in frames.chunks(ROWS) {
+            let sql = if chunk.len() == ROWS {
+                full.clone()
+            } else {
+                sql_for(chunk.len())
+            };
+            match &mut self.db {
+                Backend::Sqlite(c) => {
+                    let mut st = c.prepare_cached(&sql)?;
+                    let mut k = 1;
+                    for (r, f) in chunk {
+                        st.raw_bind_parameter(k, dev)?;
+                        st.raw_bind_parameter(k + 1, r.seq)?;
+                        st.raw_bind_parameter(k + 2, r.time_s)?;
+                        st.raw_bind_parameter(k + 3, kind_name(&r.body))?;
+                        st.raw_bind_parameter(k + 4, f.as_slice())?;
+                        k += 5;
+                    }
+                    new += st.raw_execute()?;
+                }
+                Backend::Pg(c) => {
+                    let mut params: Vec<Box<dyn postgres::types::ToSql + Sync>> =
+                        Vec::with_capacity(chunk.len() * 5);
+                    for (r, f) in chunk {
                         params.push(Box::new(dev.to_string()));
                         params.push(Box::new(i64::from(r.seq)));
                         params.push(Box::new(i64::from(r.time_s)));
                         params.push(Box::new(kind_name(&r.body).to_string()));
                         params.push(Box::new(f.clone()));
                     }
-                    sql.push_str(" ON CONFLICT (device, seq) DO NOTHING");
-                    let refs: Vec<&(dyn postgres::types::ToSql + Sync)> = params.iter().map(|b| b.as_ref()).collect();
+                    let refs: Vec<&(dyn postgres::types::ToSql + Sync)> =
+                        params.iter().map(|b| b.as_ref()).collect();
                     new += c.execute(sql.as_str(), &refs)? as usize;
                 }
             }
@@ -498,17 +546,38 @@ impl Store {
     /// Every stored record of a device, in time order (a stored frame that no longer decodes
     /// is an error naming the device and seq).
     pub fn records(&mut self, device: &str) -> Result<Vec<EventRecord>, ReviewError> {
-        let rows = self.query(
-            "SELECT seq, frame FROM records WHERE device = $1 ORDER BY time_s, seq",
-            &[Val::T(device.into())],
-        )?;
-        rows.iter()
-            .map(|r| {
-                event::decode_exact(r[1].b()).map_err(|e| {
-                    ReviewError::store("read records", format!("device {device} seq {}: {e}", r[0].i()))
-                })
-            })
-            .collect()
+        let bad = |seq: i64, e: event::DecodeError| {
+            ReviewError::store("read records", format!("device {device} seq {seq}: {e}"))
+        };
+        let mut out = Vec::new();
+        match &mut self.db {
+            Backend::Sqlite(c) => {
+                let mut st = c.prepare_cached(
+                    "SELECT seq, frame FROM records WHERE device = ?1 ORDER BY seq",
+                )?;
+                let mut rows = st.query([device])?;
+                while let Some(r) = rows.next()? {
+                    let seq: i64 = r.get(0)?;
+                    let frame = r
+                        .get_ref(1)?
+                        .as_blob()
+                        .map_err(|e| ReviewError::store("read records", e))?;
+                    out.push(event::decode_exact(frame).map_err(|e| bad(seq, e))?);
+                }
+            }
+            Backend::Pg(c) => {
+                for r in c.query(
+                    "SELECT seq, frame FROM records WHERE device = $1 ORDER BY seq",
+                    &[&device],
+                )? {
+                    let seq: i64 = r.try_get(0)?;
+                    let frame: &[u8] = r.try_get(1)?;
+                    out.push(event::decode_exact(frame).map_err(|e| bad(seq, e))?);
+                }
+            }
+        }
+        out.sort_by_key(|r| (r.time_s, r.seq));
+        Ok(out)
     }
 
     /// Stored rain intervals of a device.
@@ -546,9 +615,17 @@ impl Store {
         self.write_derived(pond, &storms, &health)
     }
 
-    fn write_derived(&mut self, pond: &Pond, storms: &[StormSummary], health: &PondHealth) -> Result<(), ReviewError> {
+    fn write_derived(
+        &mut self,
+        pond: &Pond,
+        storms: &[StormSummary],
+        health: &PondHealth,
+    ) -> Result<(), ReviewError> {
         let id = Val::T(pond.info.pond_id.clone());
-        self.exec("DELETE FROM storms WHERE pond_id = $1", std::slice::from_ref(&id))?;
+        self.exec(
+            "DELETE FROM storms WHERE pond_id = $1",
+            std::slice::from_ref(&id),
+        )?;
         for s in storms {
             let json = serde_json::to_string(s).map_err(|e| ReviewError::store("storm json", e))?;
             let flags: Vec<String> = s.flags.iter().map(|f| f.code()).collect();
@@ -584,7 +661,8 @@ impl Store {
                 ],
             )?;
         }
-        let hjson = serde_json::to_string(health).map_err(|e| ReviewError::store("health json", e))?;
+        let hjson =
+            serde_json::to_string(health).map_err(|e| ReviewError::store("health json", e))?;
         self.exec(
             "INSERT INTO pond_health (pond_id, sensor_score, drift_m_per_year, drift_flag, health_json)
              VALUES ($1, $2, $3, $4, $5)
@@ -599,9 +677,12 @@ impl Store {
                 Val::T(hjson),
             ],
         )?;
-        self.exec("DELETE FROM gate_wear WHERE pond_id = $1", std::slice::from_ref(&id))?;
+        self.exec(
+            "DELETE FROM gate_wear WHERE pond_id = $1",
+            std::slice::from_ref(&id),
+        )?;
         for w in &health.wear {
-            let share = (w.days_covered / 365.0).min(1.0).max(1.0 / 365.0);
+            let share = (w.days_covered / 365.0).clamp(1.0 / 365.0, 1.0);
             let ratio = (w.moves as f32 / (pond.info.wear.moves_per_year as f32 * share))
                 .max(w.travel / (pond.info.wear.travel_per_year * share));
             self.exec(
@@ -637,28 +718,44 @@ impl Store {
                 "SELECT summary_json FROM storms WHERE pond_id = $1 ORDER BY start_s",
                 &[Val::T(p.into())],
             )?,
-            None => self.query("SELECT summary_json FROM storms ORDER BY pond_id, start_s", &[])?,
+            None => self.query(
+                "SELECT summary_json FROM storms ORDER BY pond_id, start_s",
+                &[],
+            )?,
         };
         rows.iter()
-            .map(|r| serde_json::from_str(&r[0].t()).map_err(|e| ReviewError::store("storm json", e)))
+            .map(|r| {
+                serde_json::from_str(&r[0].t()).map_err(|e| ReviewError::store("storm json", e))
+            })
             .collect()
     }
 
     /// Pond health rows, worst sensor score first.
     pub fn health(&mut self) -> Result<Vec<PondHealth>, ReviewError> {
-        let rows = self.query("SELECT health_json FROM pond_health ORDER BY sensor_score DESC, pond_id", &[])?;
+        let rows = self.query(
+            "SELECT health_json FROM pond_health ORDER BY sensor_score DESC, pond_id",
+            &[],
+        )?;
         rows.iter()
-            .map(|r| serde_json::from_str(&r[0].t()).map_err(|e| ReviewError::store("health json", e)))
+            .map(|r| {
+                serde_json::from_str(&r[0].t()).map_err(|e| ReviewError::store("health json", e))
+            })
             .collect()
     }
 
     /// Decode problems stored for a device: `(source, offset, len, why)`.
-    pub fn problems(&mut self, device: &str) -> Result<Vec<(String, i64, i64, String)>, ReviewError> {
+    pub fn problems(
+        &mut self,
+        device: &str,
+    ) -> Result<Vec<(String, i64, i64, String)>, ReviewError> {
         let rows = self.query(
             "SELECT source, offset_b, len_b, why FROM problems WHERE device = $1 ORDER BY source, offset_b",
             &[Val::T(device.into())],
         )?;
-        Ok(rows.iter().map(|r| (r[0].t(), r[1].i(), r[2].i(), r[3].t())).collect())
+        Ok(rows
+            .iter()
+            .map(|r| (r[0].t(), r[1].i(), r[2].i(), r[3].t()))
+            .collect())
     }
 
     /// Ponds that exceeded their permit in `year`, most storms with an exceedance first.
@@ -699,7 +796,11 @@ impl Store {
                 pond_id: r[0].t(),
                 start_s: r[1].i() as u32,
                 rp_years: r[2].opt_f(),
-                rp_text: if r[3] == Val::Null { "no rain data".into() } else { r[3].t() },
+                rp_text: if r[3] == Val::Null {
+                    "no rain data".into()
+                } else {
+                    r[3].t()
+                },
                 rp_duration_min: r[4].opt_f().map(|x| x as u32),
                 freeboard_used_frac: r[5].f(),
                 freeboard_left_m: r[6].f(),
@@ -717,7 +818,8 @@ impl Store {
         )?;
         let mut by: BTreeMap<String, (Vec<(f64, f64)>, f64)> = BTreeMap::new();
         for r in &rows {
-            let target = serde_json::from_str::<PondInfo>(&r[3].t()).map_or(f64::NAN, |i| f64::from(i.drawdown_target_s) / 3600.0);
+            let target = serde_json::from_str::<PondInfo>(&r[3].t())
+                .map_or(f64::NAN, |i| f64::from(i.drawdown_target_s) / 3600.0);
             let e = by.entry(r[0].t()).or_insert((Vec::new(), target));
             e.0.push((r[1].f() / (365.25 * 86_400.0), r[2].f() / 3600.0));
         }
@@ -735,12 +837,20 @@ impl Store {
                     mean_h: my,
                     last_h: pts.last().map_or(f64::NAN, |p| p.1),
                     max_h: pts.iter().map(|p| p.1).fold(f64::NAN, f64::max),
-                    trend_h_per_year: if pts.len() >= 3 && sxx > 0.0 { Some(sxy / sxx) } else { None },
+                    trend_h_per_year: if pts.len() >= 3 && sxx > 0.0 {
+                        Some(sxy / sxx)
+                    } else {
+                        None
+                    },
                     target_h,
                 }
             })
             .collect();
-        out.sort_by(|a, b| b.trend_h_per_year.unwrap_or(f64::MIN).total_cmp(&a.trend_h_per_year.unwrap_or(f64::MIN)));
+        out.sort_by(|a, b| {
+            b.trend_h_per_year
+                .unwrap_or(f64::MIN)
+                .total_cmp(&a.trend_h_per_year.unwrap_or(f64::MIN))
+        });
         Ok(out)
     }
 

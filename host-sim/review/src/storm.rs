@@ -26,8 +26,8 @@
 use std::collections::BTreeMap;
 
 use holdback_core::config::IdfModel;
-use holdback_core::event::{EventBody, EventRecord, FaultSource, HealthFlags, ModeCode};
 use holdback_core::event::AlarmKind;
+use holdback_core::event::{EventBody, EventRecord, FaultSource, HealthFlags, ModeCode};
 use holdback_core::rain::{GaugeSettings, Idf, RainGauge, ReturnPeriod};
 use serde::{Deserialize, Serialize};
 
@@ -393,9 +393,14 @@ fn finite_or(x: f32, d: f32) -> f32 {
 /// The records sorted by time (then sequence), with rain from `csv` merged in as
 /// `RainTotal` records when the log itself has none. Returns the records and the rain
 /// source.
-fn prepare(records: &[EventRecord], csv: Option<&[RainInterval]>) -> (Vec<EventRecord>, RainSource) {
+fn prepare(
+    records: &[EventRecord],
+    csv: Option<&[RainInterval]>,
+) -> (Vec<EventRecord>, RainSource) {
     let mut v: Vec<EventRecord> = records.to_vec();
-    let has_rain = v.iter().any(|r| matches!(r.body, EventBody::RainTotal { .. }));
+    let has_rain = v
+        .iter()
+        .any(|r| matches!(r.body, EventBody::RainTotal { .. }));
     let source = if has_rain {
         RainSource::Log
     } else if let Some(rain) = csv {
@@ -499,7 +504,8 @@ fn rain_stats(pond: &Pond, rain: &[RainInterval]) -> (f32, Vec<DurationPeak>) {
         .copied()
         .filter(|&d| d * 60 >= coarsest && d as f32 >= dmin * 0.999 && d as f32 <= dmax * 1.001)
         .collect();
-    let depth: f32 = rain.iter().map(|r| r.depth_mm).sum();
+    // `+ 0.0`: an empty float sum is -0.0.
+    let depth: f32 = rain.iter().map(|r| r.depth_mm).sum::<f32>() + 0.0;
     if durations.is_empty() || rain.is_empty() {
         return (depth, Vec::new());
     }
@@ -547,12 +553,14 @@ impl<const N: usize> TryNewGauge for RainGauge<N> {
 
 fn happening(r: &EventRecord) -> Option<Happening> {
     let (kind, what) = match r.body {
-        EventBody::FaultRaised { source, kind } => {
-            ("fault_raised", format!("{}/{}", code_name(source), code_name(kind)))
-        }
-        EventBody::FaultCleared { source, kind } => {
-            ("fault_cleared", format!("{}/{}", code_name(source), code_name(kind)))
-        }
+        EventBody::FaultRaised { source, kind } => (
+            "fault_raised",
+            format!("{}/{}", code_name(source), code_name(kind)),
+        ),
+        EventBody::FaultCleared { source, kind } => (
+            "fault_cleared",
+            format!("{}/{}", code_name(source), code_name(kind)),
+        ),
         EventBody::Alarm { kind, value } => ("alarm", format!("{} {value}", code_name(kind))),
         EventBody::PermitExceedance {
             release_m3s,
@@ -588,7 +596,9 @@ fn thin(samples: &[Sample], n: usize) -> Vec<PlotPoint> {
         .chunks(per)
         .flat_map(|c| {
             let hs = c.iter().max_by(|a, b| a.stage_m.total_cmp(&b.stage_m));
-            let hr = c.iter().max_by(|a, b| a.release_m3s.total_cmp(&b.release_m3s));
+            let hr = c
+                .iter()
+                .max_by(|a, b| a.release_m3s.total_cmp(&b.release_m3s));
             let mut v: Vec<&Sample> = hs.into_iter().chain(hr).collect();
             v.sort_by_key(|s| s.t);
             v.dedup_by_key(|s| s.t);
@@ -743,13 +753,25 @@ fn summarise_one(
     };
     let rarest = peaks
         .iter()
-        .max_by(|a, b| a.return_period.sort_key().total_cmp(&b.return_period.sort_key()))
+        .max_by(|a, b| {
+            a.return_period
+                .sort_key()
+                .total_cmp(&b.return_period.sort_key())
+        })
         .map(|p| (p.return_period, p.duration_min));
-    let last_rain_s = rain.iter().filter(|r| r.depth_mm > 0.0).map(|r| r.end_s).max();
+    let last_rain_s = rain
+        .iter()
+        .filter(|r| r.depth_mm > 0.0)
+        .map(|r| r.end_s)
+        .max();
     let drawdown_from = last_rain_s.unwrap_or(peak_stage_s);
     let back = samples
         .iter()
-        .find(|s| s.t >= drawdown_from && s.t >= peak_stage_s && s.stage_m <= info.normal_m + info.normal_tolerance_m)
+        .find(|s| {
+            s.t >= drawdown_from
+                && s.t >= peak_stage_s
+                && s.stage_m <= info.normal_m + info.normal_tolerance_m
+        })
         .map(|s| s.t.saturating_sub(drawdown_from));
     let (moves, travel) = if decisions >= 2 {
         (cmd_moves, cmd_travel)
@@ -878,7 +900,12 @@ pub fn pond_health(pond: &Pond, records: &[EventRecord], storms: &[StormSummary]
     let settle = info.inter_event_s as u32;
     let windows: Vec<(u32, u32)> = storms
         .iter()
-        .map(|s| (s.start_s.saturating_sub(settle), s.end_s.saturating_add(settle)))
+        .map(|s| {
+            (
+                s.start_s.saturating_sub(settle),
+                s.end_s.saturating_add(settle),
+            )
+        })
         .collect();
     let in_storm = |t: u32| {
         let k = windows.partition_point(|w| w.1 < t);
@@ -891,7 +918,9 @@ pub fn pond_health(pond: &Pond, records: &[EventRecord], storms: &[StormSummary]
     let mut wear: BTreeMap<i32, (u32, f32, u32, u32)> = BTreeMap::new();
     let mut last_cmd: Option<f32> = None;
     let mut last_open: Option<f32> = None;
-    let any_decisions = recs.iter().any(|r| matches!(r.body, EventBody::Decision { .. }));
+    let any_decisions = recs
+        .iter()
+        .any(|r| matches!(r.body, EventBody::Decision { .. }));
     for r in &recs {
         let year = crate::time::year_of(r.time_s);
         let e = wear.entry(year).or_insert((0, 0.0, r.time_s, r.time_s));
@@ -961,10 +990,21 @@ pub fn pond_health(pond: &Pond, records: &[EventRecord], storms: &[StormSummary]
     let (drift, offset) = if n >= 10 && span_days >= 30.0 {
         let nf = f64::from(n);
         let den = nf * sxx - sx * sx;
-        let slope = if den.abs() > 1e-12 { (nf * sxy - sx * sy) / den } else { 0.0 };
+        let slope = if den.abs() > 1e-12 {
+            (nf * sxy - sx * sy) / den
+        } else {
+            0.0
+        };
         (Some(slope as f32), Some((sy / nf) as f32 - info.normal_m))
     } else {
-        (None, if n > 0 { Some((sy / f64::from(n)) as f32 - info.normal_m) } else { None })
+        (
+            None,
+            if n > 0 {
+                Some((sy / f64::from(n)) as f32 - info.normal_m)
+            } else {
+                None
+            },
+        )
     };
     let drift_flag = drift.is_some_and(|d| d.abs() > info.drift_limit_m_per_year);
     let wear = wear
@@ -983,7 +1023,11 @@ pub fn pond_health(pond: &Pond, records: &[EventRecord], storms: &[StormSummary]
             }
         })
         .collect();
-    let unhealthy_frac = if samples > 0 { unhealthy as f32 / samples as f32 } else { 0.0 };
+    let unhealthy_frac = if samples > 0 {
+        unhealthy as f32 / samples as f32
+    } else {
+        0.0
+    };
     let fault_total: u32 = faults.values().sum();
     PondHealth {
         pond_id: info.pond_id.clone(),

@@ -32,8 +32,7 @@ use std::collections::BTreeMap;
 use std::fmt::Write as _;
 
 use holdback_core::event::{
-    AlarmKind, EventBody, EventRecord, ExceedReason, FaultKind, FaultSource, HealthFlags,
-    ModeCode,
+    AlarmKind, EventBody, EventRecord, ExceedReason, FaultKind, FaultSource, HealthFlags, ModeCode,
 };
 use serde_json::{Map, Value};
 
@@ -144,7 +143,12 @@ pub fn to_line(device: &str, r: &EventRecord) -> String {
             num(&mut s, "storage_m3", storage_m3);
             num(&mut s, "release_m3s", release_m3s);
             num(&mut s, "opening", opening);
-            let _ = write!(s, ",\"mode\":\"{}\",\"health\":{}", code_name(mode), health.0);
+            let _ = write!(
+                s,
+                ",\"mode\":\"{}\",\"health\":{}",
+                code_name(mode),
+                health.0
+            );
         }
         EventBody::RainTotal { window_s, depth_mm } => {
             let _ = write!(s, ",\"window_s\":{window_s}");
@@ -208,7 +212,10 @@ pub fn parse_line(line: &str) -> Result<(String, EventRecord), String> {
         .to_string();
     let seq = f.uint::<u32>("seq")?;
     let time_s = f.uint::<u32>("time_s")?;
-    let kind = f.get("kind")?.as_str().ok_or("field kind: must be a string")?;
+    let kind = f
+        .get("kind")?
+        .as_str()
+        .ok_or("field kind: must be a string")?;
     let body = match kind {
         "mode_change" => EventBody::ModeChange {
             from: f.code("from", ModeCode::ALL)?,
@@ -426,11 +433,18 @@ mod tests {
         let logs = read_lines(text.as_bytes());
         assert_eq!(logs.len(), 2);
         assert_eq!(logs[0].device.as_deref(), Some("a"));
-        assert_eq!(logs[0].records().iter().map(|r| r.seq).collect::<Vec<_>>(), [1, 3]);
+        assert_eq!(
+            logs[0].records().iter().map(|r| r.seq).collect::<Vec<_>>(),
+            [1, 3]
+        );
         assert_eq!(logs[1].records().len(), 1);
         assert_eq!(logs[0].problems.len(), 2);
         assert_eq!(logs[0].problems[0].offset, bad_at);
-        assert!(logs[0].problems[0].why.contains("line 2: field alarm"), "{:?}", logs[0].problems);
+        assert!(
+            logs[0].problems[0].why.contains("line 2: field alarm"),
+            "{:?}",
+            logs[0].problems
+        );
         assert!(logs[0].problems[1].why.contains("line 6: not JSON"));
     }
 }

@@ -44,7 +44,11 @@ pub fn stamp(time_s: u32) -> String {
     let t = i64::from(time_s);
     let (y, m, d) = civil_from_days(t.div_euclid(86_400));
     let s = t.rem_euclid(86_400);
-    format!("{y:04}-{m:02}-{d:02} {:02}:{:02}", s / 3600, (s % 3600) / 60)
+    format!(
+        "{y:04}-{m:02}-{d:02} {:02}:{:02}",
+        s / 3600,
+        (s % 3600) / 60
+    )
 }
 
 #[cfg(test)]

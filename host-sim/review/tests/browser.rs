@@ -18,20 +18,58 @@ use serde_json::{Value, json};
 /// A minimal HTTP/1.1 client for WebDriver's JSON commands (loopback only).
 fn http(port: u16, method: &str, path: &str, body: Option<&Value>) -> Result<Value, String> {
     let mut s = TcpStream::connect(("127.0.0.1", port)).map_err(|e| e.to_string())?;
-    s.set_read_timeout(Some(Duration::from_secs(60))).map_err(|e| e.to_string())?;
+    s.set_read_timeout(Some(Duration::from_secs(60)))
+        .map_err(|e| e.to_string())?;
     let b = body.map(|v| v.to_string()).unwrap_or_default();
     let req = format!(
         "{method} {path} HTTP/1.1\r\nHost: 127.0.0.1:{port}\r\nContent-Type: application/json\r\nContent-Length: {}\r\nConnection: close\r\n\r\n{b}",
         b.len()
     );
     s.write_all(req.as_bytes()).map_err(|e| e.to_string())?;
+    // Read the header, then exactly Content-Length bytes (the driver may keep the
+    // connection open), or chunks up to the last one.
     let mut raw = Vec::new();
-    s.read_to_end(&mut raw).map_err(|e| e.to_string())?;
-    let text = String::from_utf8_lossy(&raw);
-    let (head, rest) = text.split_once("\r\n\r\n").ok_or("no HTTP header end")?;
-    let body = if head.to_ascii_lowercase().contains("transfer-encoding: chunked") {
+    let mut buf = [0u8; 8192];
+    let head_end = loop {
+        let n = s.read(&mut buf).map_err(|e| e.to_string())?;
+        if n == 0 {
+            return Err("connection closed before the header ended".into());
+        }
+        raw.extend_from_slice(&buf[..n]);
+        if let Some(p) = raw.windows(4).position(|w| w == b"\r\n\r\n") {
+            break p + 4;
+        }
+    };
+    let head = String::from_utf8_lossy(&raw[..head_end]).to_ascii_lowercase();
+    let length = head
+        .lines()
+        .find_map(|l| {
+            l.strip_prefix("content-length:")
+                .map(|v| v.trim().parse::<usize>())
+        })
+        .transpose()
+        .map_err(|e| e.to_string())?;
+    let chunked = head.contains("transfer-encoding: chunked");
+    loop {
+        let have = raw.len() - head_end;
+        let done = match length {
+            Some(len) => have >= len,
+            None if chunked => raw.ends_with(b"0\r\n\r\n"),
+            None => false,
+        };
+        if done {
+            break;
+        }
+        let n = s.read(&mut buf).map_err(|e| e.to_string())?;
+        if n == 0 {
+            break;
+        }
+        raw.extend_from_slice(&buf[..n]);
+    }
+    let rest = String::from_utf8_lossy(&raw[head_end..]).into_owned();
+    let body = if chunked {
         let mut out = String::new();
-        let mut r = rest;
+        let mut r = rest.as_str();
         while let Some((len, tail)) = r.split_once("\r\n") {
             let n = usize::from_str_radix(len.trim(), 16).map_err(|e| e.to_string())?;
             if n == 0 {
@@ -42,7 +80,7 @@ fn http(port: u16, method: &str, path: &str, body: Option<&Value>) -> Result<Val
         }
         out
     } else {
-        rest.to_string()
+        rest
     };
     let v: Value = serde_json::from_str(&body).map_err(|e| format!("{e}: {body}"))?;
     if let Some(err) = v["value"].get("error") {
@@ -59,7 +97,12 @@ struct Driver {
 
 impl Drop for Driver {
     fn drop(&mut self) {
-        let _ = http(self.port, "DELETE", &format!("/session/{}", self.session), None);
+        let _ = http(
+            self.port,
+            "DELETE",
+            &format!("/session/{}", self.session),
+            None,
+        );
         let _ = self.child.kill();
         let _ = self.child.wait();
     }
@@ -72,11 +115,24 @@ impl Driver {
         http(self.port, method, &path, b).unwrap()["value"].clone()
     }
     fn js(&self, script: &str) -> Value {
-        self.cmd("POST", "execute/sync", json!({"script": script, "args": []}))
+        self.cmd(
+            "POST",
+            "execute/sync",
+            json!({"script": script, "args": []}),
+        )
     }
     fn click(&self, css: &str) {
-        let el = self.cmd("POST", "element", json!({"using": "css selector", "value": css}));
-        let id = el.as_object().and_then(|o| o.values().next()).and_then(Value::as_str).unwrap().to_string();
+        let el = self.cmd(
+            "POST",
+            "element",
+            json!({"using": "css selector", "value": css}),
+        );
+        let id = el
+            .as_object()
+            .and_then(|o| o.values().next())
+            .and_then(Value::as_str)
+            .unwrap()
+            .to_string();
         self.cmd("POST", &format!("element/{id}/click"), json!({}));
     }
 }
@@ -91,8 +147,12 @@ fn start(chromium: &str, driver: &str, profile: &std::path::Path) -> Driver {
         .spawn()
         .expect("chromedriver starts");
     let t0 = Instant::now();
-    while http(port, "GET", "/status", None).map(|v| v["value"]["ready"] == json!(true)) != Ok(true) {
-        assert!(t0.elapsed() < Duration::from_secs(30), "chromedriver not ready on port {port}");
+    while http(port, "GET", "/status", None).map(|v| v["value"]["ready"] == json!(true)) != Ok(true)
+    {
+        assert!(
+            t0.elapsed() < Duration::from_secs(30),
+            "chromedriver not ready on port {port}"
+        );
         std::thread::sleep(Duration::from_millis(100));
     }
     let caps = json!({"capabilities": {"alwaysMatch": {
@@ -104,7 +164,11 @@ fn start(chromium: &str, driver: &str, profile: &std::path::Path) -> Driver {
             format!("--user-data-dir={}", profile.display())
         ]}
     }}});
-    let mut d = Driver { child, port, session: String::new() };
+    let mut d = Driver {
+        child,
+        port,
+        session: String::new(),
+    };
     let v = http(port, "POST", "/session", Some(&caps)).unwrap();
     d.session = v["value"]["sessionId"].as_str().unwrap().to_string();
     d
@@ -124,7 +188,12 @@ fn write_report(dir: &std::path::Path) -> (std::path::PathBuf, Vec<String>) {
         ponds.push(p.pond.clone());
     }
     let problems = BTreeMap::new();
-    let d = FleetData { ponds: &ponds, storms: &storms, health: &health, problems: &problems };
+    let d = FleetData {
+        ponds: &ponds,
+        storms: &storms,
+        health: &health,
+        problems: &problems,
+    };
     let html = report::html(&d, &ReportOptions::default());
     let path = dir.join("fleet.html");
     std::fs::write(&path, html).unwrap();
@@ -135,20 +204,39 @@ fn write_report(dir: &std::path::Path) -> (std::path::PathBuf, Vec<String>) {
 #[ignore = "needs chromium + chromedriver: scripts/browser-test.sh"]
 fn report_loads_lists_every_pond_plots_and_sorts_on_click() {
     let chromium = std::env::var("HOLDBACK_CHROMIUM").expect("HOLDBACK_CHROMIUM: path of chromium");
-    let driver = std::env::var("HOLDBACK_CHROMEDRIVER").expect("HOLDBACK_CHROMEDRIVER: path of chromedriver");
+    let driver = std::env::var("HOLDBACK_CHROMEDRIVER")
+        .expect("HOLDBACK_CHROMEDRIVER: path of chromedriver");
     let dir = tempfile::tempdir().unwrap();
     let (page, ids) = write_report(dir.path());
     let d = start(&chromium, &driver, &dir.path().join("profile"));
-    d.cmd("POST", "url", json!({"url": format!("file://{}", page.display())}));
+    d.cmd(
+        "POST",
+        "url",
+        json!({"url": format!("file://{}", page.display())}),
+    );
     // No JS error: the inline script ran to its end, and the browser log has no SEVERE entry.
-    assert_eq!(d.js("return document.body.getAttribute('data-ready');"), json!("1"));
-    let logs = http(d.port, "POST", &format!("/session/{}/se/log", d.session), Some(&json!({"type": "browser"})))
-        .map(|v| v["value"].clone())
-        .unwrap_or(json!([]));
-    let severe: Vec<&Value> = logs.as_array().map(|a| a.iter().filter(|e| e["level"] == json!("SEVERE")).collect()).unwrap_or_default();
+    assert_eq!(
+        d.js("return document.body.getAttribute('data-ready');"),
+        json!("1")
+    );
+    let logs = http(
+        d.port,
+        "POST",
+        &format!("/session/{}/se/log", d.session),
+        Some(&json!({"type": "browser"})),
+    )
+    .map(|v| v["value"].clone())
+    .unwrap_or(json!([]));
+    let severe: Vec<&Value> = logs
+        .as_array()
+        .map(|a| a.iter().filter(|e| e["level"] == json!("SEVERE")).collect())
+        .unwrap_or_default();
     assert!(severe.is_empty(), "browser errors: {severe:?}");
     // No external asset of any kind.
-    assert_eq!(d.js("return document.querySelectorAll('link[href],script[src],img[src]').length;"), json!(0));
+    assert_eq!(
+        d.js("return document.querySelectorAll('link[href],script[src],img[src]').length;"),
+        json!(0)
+    );
     // Every pond in the overview.
     let listed = d.js("return Array.from(document.querySelectorAll('#overview tbody tr')).map(r => r.cells[0].textContent);");
     let listed: Vec<String> = serde_json::from_value(listed).unwrap();
@@ -173,5 +261,8 @@ fn report_loads_lists_every_pond_plots_and_sorts_on_click() {
     let mut sorted = names.clone();
     sorted.sort_by_key(|s| s.to_lowercase());
     assert_eq!(names.len(), ids.len());
-    assert_eq!(names.iter().map(|s| s.to_lowercase()).collect::<Vec<_>>(), sorted.iter().map(|s| s.to_lowercase()).collect::<Vec<_>>());
+    assert_eq!(
+        names.iter().map(|s| s.to_lowercase()).collect::<Vec<_>>(),
+        sorted.iter().map(|s| s.to_lowercase()).collect::<Vec<_>>()
+    );
 }

@@ -23,16 +23,30 @@ fn body(i: u32) -> EventBody {
             mode: ModeCode::Capture,
             health: HealthFlags(0),
         },
-        1 => EventBody::RainTotal { window_s: 300, depth_mm: 0.2 * (i % 7) as f32 },
-        2 => EventBody::Decision { target_release_m3s: 0.1, opening_cmd: 0.02 * (i % 50) as f32 },
-        _ => EventBody::FaultRaised { source: FaultSource::StageSensor, kind: FaultKind::Implausible },
+        1 => EventBody::RainTotal {
+            window_s: 300,
+            depth_mm: 0.2 * (i % 7) as f32,
+        },
+        2 => EventBody::Decision {
+            target_release_m3s: 0.1,
+            opening_cmd: 0.02 * (i % 50) as f32,
+        },
+        _ => EventBody::FaultRaised {
+            source: FaultSource::StageSensor,
+            kind: FaultKind::Implausible,
+        },
     }
 }
 
 /// Write `n` records through the firmware's EventLog; returns the flash and what the log
 /// itself reads back.
 fn write(n: u32) -> (Flash, Vec<EventRecord>) {
-    let mut log = EventLog::new(Flash::new(PAGES), 0..(PAGES * 1024) as u32, SamplePolicy::new(1)).unwrap();
+    let mut log = EventLog::new(
+        Flash::new(PAGES),
+        0..(PAGES * 1024) as u32,
+        SamplePolicy::new(1),
+    )
+    .unwrap();
     for i in 0..n {
         log.append(1_735_689_600 + i * 60, body(i)).unwrap();
     }
@@ -42,7 +56,11 @@ fn write(n: u32) -> (Flash, Vec<EventRecord>) {
 }
 
 fn expected(seq: u32) -> EventRecord {
-    EventRecord { seq, time_s: 1_735_689_600 + seq * 60, body: body(seq) }
+    EventRecord {
+        seq,
+        time_s: 1_735_689_600 + seq * 60,
+        body: body(seq),
+    }
 }
 
 fn dump(image: &[u8]) -> read::DecodedLog {
@@ -68,7 +86,8 @@ fn firmware_image_decodes_to_the_same_events() {
         let again = read::read_bytes(&bytes, Path::new("x"), &ReadOptions::default()).unwrap();
         assert_eq!(again[0].records(), back);
         let lines = telemetry::to_lines("hb-x", &back);
-        let t = read::read_bytes(lines.as_bytes(), Path::new("t"), &ReadOptions::default()).unwrap();
+        let t =
+            read::read_bytes(lines.as_bytes(), Path::new("t"), &ReadOptions::default()).unwrap();
         assert_eq!(t.len(), 1);
         assert_eq!(t[0].records(), back, "telemetry rebuilds the log");
         assert!(t[0].problems.is_empty());
@@ -83,10 +102,17 @@ fn firmware_image_decodes_to_the_same_events() {
 fn damaged_dump_decodes_everything_intact_and_reports_the_rest() {
     let (flash, back) = write(300);
     let clean = dump(flash.image());
-    let offsets: Vec<(usize, u32)> = clean.records.iter().map(|l| (l.offset, l.record.seq)).collect();
+    let offsets: Vec<(usize, u32)> = clean
+        .records
+        .iter()
+        .map(|l| (l.offset, l.record.seq))
+        .collect();
     let mut img = flash.image().to_vec();
     // 1. Flip a bit in the data of one item of page 2.
-    let (off_a, seq_a) = *offsets.iter().find(|(o, _)| *o / 1024 == 2 && *o % 1024 > 100).unwrap();
+    let (off_a, seq_a) = *offsets
+        .iter()
+        .find(|(o, _)| *o / 1024 == 2 && *o % 1024 > 100)
+        .unwrap();
     img[off_a + 10] ^= 0x08;
     // 2. Erase page 5 in the middle of the log.
     img[5 * 1024..6 * 1024].fill(0xFF);
@@ -97,7 +123,11 @@ fn damaged_dump_decodes_everything_intact_and_reports_the_rest() {
     img.truncate(cut);
     let log = dump(&img);
     for r in &log.records {
-        assert_eq!(r.record, expected(r.record.seq), "a damaged record was accepted");
+        assert_eq!(
+            r.record,
+            expected(r.record.seq),
+            "a damaged record was accepted"
+        );
     }
     let got: Vec<u32> = log.records.iter().map(|l| l.record.seq).collect();
     let lost_pages = [5usize, 8, PAGES - 1];
@@ -105,9 +135,25 @@ fn damaged_dump_decodes_everything_intact_and_reports_the_rest() {
         let damaged = s == seq_a || lost_pages.contains(&(o / 1024));
         assert_eq!(got.contains(&s), !damaged, "seq {s} at offset {o}");
     }
-    assert!(log.problems.iter().any(|p| p.offset == off_a && p.why.contains("crc")), "{:?}", log.problems);
-    assert!(log.problems.iter().any(|p| p.offset == 8 * 1024 && p.len == 1024), "{:?}", log.problems);
-    assert!(log.problems.iter().any(|p| p.offset == cut - 300 && p.len == 300 && p.why.contains("truncated")));
+    assert!(
+        log.problems
+            .iter()
+            .any(|p| p.offset == off_a && p.why.contains("crc")),
+        "{:?}",
+        log.problems
+    );
+    assert!(
+        log.problems
+            .iter()
+            .any(|p| p.offset == 8 * 1024 && p.len == 1024),
+        "{:?}",
+        log.problems
+    );
+    assert!(
+        log.problems
+            .iter()
+            .any(|p| p.offset == cut - 300 && p.len == 300 && p.why.contains("truncated"))
+    );
     // The erased page leaves a sequence gap, reported as such.
     assert!(!log.gaps().is_empty());
     assert!(got.len() > back.len() / 2);
@@ -138,7 +184,8 @@ fn random_damage_never_accepts_a_wrong_record() {
         for r in dump(&img).records {
             assert_eq!(r.record, expected(r.record.seq));
         }
-        for r in read::read_bytes(&f, Path::new("f"), &ReadOptions::default()).unwrap()[0].records() {
+        for r in read::read_bytes(&f, Path::new("f"), &ReadOptions::default()).unwrap()[0].records()
+        {
             assert_eq!(r, expected(r.seq));
         }
     }

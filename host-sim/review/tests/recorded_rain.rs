@@ -49,7 +49,10 @@ fn pond() -> Pond {
             min_duration_min: 5.0,
             max_duration_min: 1440.0,
         },
-        wear: WearBudget { moves_per_year: 1000, travel_per_year: 100.0 },
+        wear: WearBudget {
+            moves_per_year: 1000,
+            travel_per_year: 100.0,
+        },
         drift_limit_m_per_year: 0.05,
         normal_tolerance_m: 0.02,
     })
@@ -58,7 +61,9 @@ fn pond() -> Pond {
 
 /// f64 return period of intensity `i` over `d` minutes: `None` outside the tabulated range.
 fn t_ref(i: f64, d: f64) -> Option<f64> {
-    let is: Vec<f64> = (0..TS.len()).map(|k| rain64::sherman(a_k(k), B, C, d)).collect();
+    let is: Vec<f64> = (0..TS.len())
+        .map(|k| rain64::sherman(a_k(k), B, C, d))
+        .collect();
     (0..TS.len() - 1)
         .find(|&k| i >= is[k] && i <= is[k + 1])
         .map(|k| rain64::loglog(i, is[k], is[k + 1], TS[k], TS[k + 1]))
@@ -71,7 +76,10 @@ fn log_of(rows: &[(i64, f64)], base: u32) -> Vec<EventRecord> {
         .map(|(k, &(t, mm))| EventRecord {
             seq: k as u32,
             time_s: base + t as u32,
-            body: EventBody::RainTotal { window_s: 300, depth_mm: mm as f32 },
+            body: EventBody::RainTotal {
+                window_s: 300,
+                depth_mm: mm as f32,
+            },
         })
         .collect()
 }
@@ -88,7 +96,11 @@ fn check(rows: &[(i64, f64)], base: u32, expect_storms: usize) -> usize {
     let mut checked = 0;
     for (s, r) in summaries.iter().zip(&refs) {
         let first_wet = r.iter().find(|x| x.1 > 0.0).unwrap().0;
-        assert_eq!(i64::from(s.start_s) - i64::from(base), first_wet - 300, "storm start");
+        assert_eq!(
+            i64::from(s.start_s) - i64::from(base),
+            first_wet - 300,
+            "storm start"
+        );
         let depth: f64 = r.iter().map(|x| x.1).sum();
         assert!((f64::from(s.rain_depth_mm.unwrap()) - depth).abs() < 1e-3 * depth.max(1.0));
         let mut best: Option<(f64, u32)> = None;
@@ -97,7 +109,10 @@ fn check(rows: &[(i64, f64)], base: u32, expect_storms: usize) -> usize {
             let i = rain64::max_window_depth(r, i64::from(p.duration_min) * 60) * 60.0 / d;
             let got_i = f64::from(p.intensity_mm_h);
             // f32 summation in the core: 1e-4 relative + 1e-3 mm/h.
-            assert!((got_i - i).abs() <= 1e-4 * i + 1e-3, "{d} min: {got_i} vs {i}");
+            assert!(
+                (got_i - i).abs() <= 1e-4 * i + 1e-3,
+                "{d} min: {got_i} vs {i}"
+            );
             match (t_ref(i, d), p.return_period.qualifier) {
                 (Some(t), Qualifier::Equal) => {
                     // log–log slope amplifies the f32 intensity error by ln(T ratio)/ln(i
@@ -110,7 +125,9 @@ fn check(rows: &[(i64, f64)], base: u32, expect_storms: usize) -> usize {
                     }
                 }
                 (None, Qualifier::Less) => assert!(i < rain64::sherman(a_k(0), B, C, d) * 1.0001),
-                (None, Qualifier::Greater) => assert!(i > rain64::sherman(a_k(5), B, C, d) * 0.9999),
+                (None, Qualifier::Greater) => {
+                    assert!(i > rain64::sherman(a_k(5), B, C, d) * 0.9999)
+                }
                 (t, q) => panic!("{d} min, i = {i}: reference {t:?}, review {q:?}"),
             }
         }
@@ -141,7 +158,10 @@ fn goerlitz_storm_return_periods_match_f64_reference() {
     // Dense 5-min rows: the sparse file lists wet steps only; dry steps are 0 (no row needed
     // for the window sums, and the review counts an absent interval as 0 mm).
     // 2010-01-01 00:00 UTC = 1_262_304_000 s since 1970.
-    let storms = rain64::storms(&rows, 6 * 3600).into_iter().filter(|s| s.iter().map(|r| r.1).sum::<f64>() >= 2.0).count();
+    let storms = rain64::storms(&rows, 6 * 3600)
+        .into_iter()
+        .filter(|s| s.iter().map(|r| r.1).sum::<f64>() >= 2.0)
+        .count();
     let n = check(&rows, 1_262_304_000, storms);
     assert!(n >= 1);
 }

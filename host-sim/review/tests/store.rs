@@ -5,7 +5,6 @@
 
 use std::path::{Path, PathBuf};
 
-
 use holdback_review::cli::import_tree;
 use holdback_review::demo;
 use holdback_review::read::{self, ReadOptions};
@@ -22,12 +21,16 @@ struct Fleet {
 fn demo_fleet() -> &'static Fleet {
     static FLEET: std::sync::OnceLock<Fleet> = std::sync::OnceLock::new();
     FLEET.get_or_init(|| {
-        let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join(format!("review-store-{}", std::process::id()));
+        let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR"))
+            .join(format!("review-store-{}", std::process::id()));
         let _ = std::fs::remove_dir_all(&dir);
         let (ponds, dumps) = demo::write_fleet(&dir, 3, 11, 2025, 75, 25, 256).unwrap();
         let ponds = ponds
             .iter()
-            .map(|p| dir.join("ponds").join(format!("{}.json", p.pond.info.pond_id)))
+            .map(|p| {
+                dir.join("ponds")
+                    .join(format!("{}.json", p.pond.info.pond_id))
+            })
             .collect();
         Fleet { dir, ponds, dumps }
     })
@@ -55,7 +58,13 @@ fn idempotent_import(url: &str, ponds: &[PathBuf], dumps: &[PathBuf]) {
     // Every record of every dump is in the store exactly once.
     let mut distinct = std::collections::BTreeSet::new();
     for d in dumps {
-        let dev = d.parent().unwrap().file_name().unwrap().to_string_lossy().into_owned();
+        let dev = d
+            .parent()
+            .unwrap()
+            .file_name()
+            .unwrap()
+            .to_string_lossy()
+            .into_owned();
         for l in read::read_file(d, &ReadOptions::default()).unwrap() {
             for r in l.records {
                 distinct.insert((dev.clone(), r.record.seq));
@@ -65,12 +74,24 @@ fn idempotent_import(url: &str, ponds: &[PathBuf], dumps: &[PathBuf]) {
     assert_eq!(records as usize, distinct.len());
     let report = {
         let logs = read::read_file(&dumps[0], &ReadOptions::default()).unwrap();
-        let dev = dumps[0].parent().unwrap().file_name().unwrap().to_string_lossy().into_owned();
-        store.import(&logs[0], &dumps[0].display().to_string(), Some(&dev)).unwrap()
+        let dev = dumps[0]
+            .parent()
+            .unwrap()
+            .file_name()
+            .unwrap()
+            .to_string_lossy()
+            .into_owned();
+        store
+            .import(&logs[0], &dumps[0].display().to_string(), Some(&dev))
+            .unwrap()
     };
     assert_eq!(report.new_records, 0);
     import_tree(&mut store, ponds, dumps, &ReadOptions::default()).unwrap();
-    assert_eq!(snapshot(&mut store), first, "second import changed the store");
+    assert_eq!(
+        snapshot(&mut store),
+        first,
+        "second import changed the store"
+    );
     drop(store);
     let mut again = Store::open(url).unwrap();
     assert_eq!(snapshot(&mut again), first, "reopening changed the store");
@@ -114,21 +135,34 @@ fn questions(url: &str, ponds: &[PathBuf], dumps: &[PathBuf]) {
         let n = storms
             .iter()
             .filter(|s| s.pond_id == r.pond_id && s.year == 2025)
-            .filter(|s| s.flags.contains(&holdback_review::storm::Flag::PermitExceeded))
+            .filter(|s| {
+                s.flags
+                    .contains(&holdback_review::storm::Flag::PermitExceeded)
+            })
             .count();
         assert_eq!(r.exceeded_storms as usize, n);
         assert!(n > 0);
     }
     let fb = store.freeboard_vs_return_period().unwrap();
     assert_eq!(fb.len(), storms.len());
-    assert!(fb.windows(2).all(|w| w[0].rp_years.unwrap_or(f64::MIN) >= w[1].rp_years.unwrap_or(f64::MIN)));
+    assert!(
+        fb.windows(2)
+            .all(|w| w[0].rp_years.unwrap_or(f64::MIN) >= w[1].rp_years.unwrap_or(f64::MIN))
+    );
     assert!(!store.drawdown_trend().unwrap().is_empty());
     let wear = store.gate_wear_ranking(Some(2025)).unwrap();
     assert_eq!(wear.len(), 3);
-    assert!(wear.windows(2).all(|w| w[0].budget_ratio >= w[1].budget_ratio));
+    assert!(
+        wear.windows(2)
+            .all(|w| w[0].budget_ratio >= w[1].budget_ratio)
+    );
     let health = store.sensor_health_ranking().unwrap();
     assert_eq!(health.len(), 3);
-    assert!(health.windows(2).all(|w| w[0].sensor_score >= w[1].sensor_score));
+    assert!(
+        health
+            .windows(2)
+            .all(|w| w[0].sensor_score >= w[1].sensor_score)
+    );
 }
 
 fn sqlite(dir: &Path, name: &str) -> String {
@@ -144,7 +178,12 @@ fn sqlite_import_is_idempotent() {
 #[test]
 fn sqlite_migration_v1_to_v2_keeps_every_row() {
     let f = demo_fleet();
-    migration(&sqlite(&f.dir, "v1.sqlite"), &sqlite(&f.dir, "v2.sqlite"), &f.ponds, &f.dumps);
+    migration(
+        &sqlite(&f.dir, "v1.sqlite"),
+        &sqlite(&f.dir, "v2.sqlite"),
+        &f.ponds,
+        &f.dumps,
+    );
 }
 
 #[test]
@@ -155,9 +194,13 @@ fn sqlite_answers_the_fleet_questions() {
 
 /// `HOLDBACK_PG_URL` with a fresh schema per use, so runs never see each other's rows.
 fn pg_url(schema: &str) -> String {
-    let base = std::env::var("HOLDBACK_PG_URL").expect("HOLDBACK_PG_URL must point at a PostgreSQL server");
+    let base = std::env::var("HOLDBACK_PG_URL")
+        .expect("HOLDBACK_PG_URL must point at a PostgreSQL server");
     let mut c = postgres::Client::connect(&base, postgres::NoTls).unwrap();
-    c.batch_execute(&format!("DROP SCHEMA IF EXISTS {schema} CASCADE; CREATE SCHEMA {schema};")).unwrap();
+    c.batch_execute(&format!(
+        "DROP SCHEMA IF EXISTS {schema} CASCADE; CREATE SCHEMA {schema};"
+    ))
+    .unwrap();
     format!("{base} options='-c search_path={schema}'")
 }
 
