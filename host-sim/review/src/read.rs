@@ -268,9 +268,10 @@ mod tests {
     use holdback_core::event::{EventBody, HealthFlags, ModeCode};
 
     fn rec(seq: u32) -> EventRecord {
+        // Times below 128 keep every frame the same length (one varint byte).
         EventRecord {
             seq,
-            time_s: seq * 60,
+            time_s: 100 + seq,
             body: EventBody::Sample {
                 stage_m: 1.0 + seq as f32 * 0.01,
                 storage_m3: 10.0,
