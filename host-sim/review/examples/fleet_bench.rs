@@ -28,9 +28,10 @@ fn main() -> Result<(), holdback_review::ReviewError> {
     let (mut t_gen, mut t_import, mut records) = (0.0, 0.0, 0usize);
     for p in &fleet {
         store.put_pond(&p.pond)?;
+        let mut seq = 0;
         for y in 0..years {
             let t = Instant::now();
-            let mut sink = MemorySink::new(u32::from(DRY_EVERY));
+            let mut sink = MemorySink::new(u32::from(DRY_EVERY)).first_seq(seq);
             demo::simulate(
                 p,
                 holdback_review::time::start_of_year_s(2025 + y as i32),
@@ -41,13 +42,15 @@ fn main() -> Result<(), holdback_review::ReviewError> {
             let bytes = holdback_review::logfile::write_bytes(&p.pond.info.pond_id, &sink.records)?;
             t_gen += t.elapsed().as_secs_f64();
             records += sink.records.len();
+            seq = sink.next_seq();
             let t = Instant::now();
             let logs = read::read_bytes(
                 &bytes,
                 std::path::Path::new("year"),
                 &ReadOptions::default(),
             )?;
-            store.import(&logs[0], &format!("{}-{y}", p.pond.info.pond_id), None)?;
+            let r = store.import(&logs[0], &format!("{}-{y}", p.pond.info.pond_id), None)?;
+            assert_eq!((r.new_records, r.conflicts), (r.records, 0));
             t_import += t.elapsed().as_secs_f64();
         }
     }

@@ -383,12 +383,14 @@ pub fn run(args: FleetArgs) -> Result<ExitCode, ReviewError> {
                 for log in read::read_file(f, &opts(&geometry))? {
                     problems |= report_problems(f, &log);
                     let r = store.import(&log, &f.display().to_string(), device.as_deref())?;
+                    problems |= r.conflicts > 0;
                     println!(
-                        "{}: device {}: {} records ({} new), {} problems, {} gaps, {}",
+                        "{}: device {}: {} records ({} new, {} conflicting), {} problems, {} gaps, {}",
                         f.display(),
                         r.device,
                         r.records,
                         r.new_records,
+                        r.conflicts,
                         r.problems,
                         r.gaps,
                         r.storms.map_or(

@@ -240,6 +240,7 @@ pub struct MemorySink {
     dry_every: u32,
     skipped: u32,
     last_mode: Option<ModeCode>,
+    next_seq: u32,
 }
 
 impl MemorySink {
@@ -250,10 +251,21 @@ impl MemorySink {
             dry_every: dry_every.max(1),
             skipped: 0,
             last_mode: None,
+            next_seq: 0,
         }
     }
+    /// Number the records from `seq` (a device's log goes on from one period to the next).
+    pub fn first_seq(mut self, seq: u32) -> MemorySink {
+        self.next_seq = seq;
+        self
+    }
+    /// Sequence number of the next record.
+    pub fn next_seq(&self) -> u32 {
+        self.next_seq
+    }
     fn push(&mut self, t: u32, body: EventBody) {
-        let seq = self.records.len() as u32;
+        let seq = self.next_seq;
+        self.next_seq = seq.wrapping_add(1);
         self.records.push(EventRecord {
             seq,
             time_s: t,

@@ -110,6 +110,10 @@ pub struct ImportReport {
     pub problems: usize,
     /// Sequence gaps in the source.
     pub gaps: usize,
+    /// Records whose (device, seq) was already stored with different contents (a device
+    /// whose sequence restarted or wrapped): not stored, reported as problems, never dropped
+    /// silently.
+    pub conflicts: usize,
     /// Storms of the pond after the import (None: pond not registered, no summary made).
     pub storms: Option<usize>,
 }
@@ -442,7 +446,11 @@ impl Store {
             }
         };
         self.in_tx(|s| {
+            let had_records = !s
+                .query("SELECT seq FROM records WHERE device = $1 LIMIT 1", &[Val::T(dev.clone())])?
+                .is_empty();
             let new = s.insert_records(&dev, log)?;
+            let conflicts = if new < log.records.len() { s.conflicts(&dev, source, log)? } else { 0 };
             for p in &log.problems {
                 s.exec(
                     "INSERT INTO problems (device, source, offset_b, len_b, why) VALUES ($1, $2, $3, $4, $5)
@@ -453,7 +461,10 @@ impl Store {
             let storms = match s.pond(&dev)? {
                 Some(_) if s.at < 2 => None,
                 Some(p) => {
-                    if new > 0 {
+                    if new > 0 && !had_records && new == log.records.len() && !s.deferred {
+                        // First records of this device: what is stored is exactly the log.
+                        s.summarise_records(&p, log.records())?;
+                    } else if new > 0 {
                         s.resummarise(&p)?;
                     }
                     let r = s.query("SELECT COUNT(*) FROM storms WHERE pond_id = $1", &[Val::T(dev.clone())])?;
@@ -467,6 +478,7 @@ impl Store {
                 new_records: new,
                 problems: log.problems.len(),
                 gaps: log.gaps().len(),
+                conflicts,
                 storms,
             })
         })
@@ -543,6 +555,39 @@ impl Store {
         Ok(new)
     }
 
+    /// Records of `log` not inserted because their seq was stored already: those whose
+    /// stored frame differs are conflicts, kept as problems of the source.
+    fn conflicts(
+        &mut self,
+        dev: &str,
+        source: &str,
+        log: &DecodedLog,
+    ) -> Result<usize, ReviewError> {
+        let stored: BTreeMap<u32, EventRecord> =
+            self.records(dev)?.into_iter().map(|r| (r.seq, r)).collect();
+        let mut n = 0;
+        for l in &log.records {
+            if stored.get(&l.record.seq).is_some_and(|r| r != &l.record) {
+                n += 1;
+                self.exec(
+                    "INSERT INTO problems (device, source, offset_b, len_b, why) VALUES ($1, $2, $3, $4, $5)
+                     ON CONFLICT (device, source, offset_b) DO NOTHING",
+                    &[
+                        Val::T(dev.into()),
+                        Val::T(source.into()),
+                        Val::I(l.offset as i64),
+                        Val::I(0),
+                        Val::T(format!(
+                            "seq {} already stored with different contents (sequence restarted or wrapped?); not stored",
+                            l.record.seq
+                        )),
+                    ],
+                )?;
+            }
+        }
+        Ok(n)
+    }
+
     /// Every stored record of a device, in time order (a stored frame that no longer decodes
     /// is an error naming the device and seq).
     pub fn records(&mut self, device: &str) -> Result<Vec<EventRecord>, ReviewError> {
@@ -606,8 +651,19 @@ impl Store {
             self.dirty.insert(pond.info.pond_id.clone());
             return Ok(());
         }
+        let records = self.records(&pond.info.pond_id)?;
+        self.summarise_records(pond, records)
+    }
+
+    fn summarise_records(
+        &mut self,
+        pond: &Pond,
+        records: Vec<EventRecord>,
+    ) -> Result<(), ReviewError> {
+        if self.at < 2 {
+            return Ok(());
+        }
         let id = pond.info.pond_id.clone();
-        let records = self.records(&id)?;
         let rain = self.rain(&id)?;
         let csv = (!rain.is_empty()).then_some(rain.as_slice());
         let storms = storm::summarise(pond, &records, csv, &self.options);

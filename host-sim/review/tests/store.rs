@@ -220,3 +220,41 @@ fn postgres_store_import_is_idempotent_migrates_and_answers() {
     import_tree(&mut b, ponds, dumps, &ReadOptions::default()).unwrap();
     assert_eq!(snapshot(&mut a), snapshot(&mut b));
 }
+
+/// A device whose sequence numbers restarted sends records under seqs already stored: they
+/// are not stored over the old ones, and each is reported as a problem (never dropped
+/// silently); the same file again adds nothing new.
+#[test]
+fn sqlite_conflicting_seq_is_reported_not_dropped_silently() {
+    use holdback_core::event::{EventBody, EventRecord};
+    let dir = tempfile::tempdir().unwrap();
+    let mut store = Store::open(&sqlite(dir.path(), "c.sqlite")).unwrap();
+    let recs = |t0: u32| -> Vec<EventRecord> {
+        (0..20)
+            .map(|k| EventRecord {
+                seq: k,
+                time_s: t0 + k * 300,
+                body: EventBody::RainTotal {
+                    window_s: 300,
+                    depth_mm: 0.2,
+                },
+            })
+            .collect()
+    };
+    let as_log = |r: &[EventRecord]| {
+        let bytes = holdback_review::logfile::write_bytes("hb-c", r).unwrap();
+        read::read_bytes(&bytes, Path::new("c"), &ReadOptions::default())
+            .unwrap()
+            .remove(0)
+    };
+    let first = store.import(&as_log(&recs(1_000_000)), "a", None).unwrap();
+    assert_eq!((first.new_records, first.conflicts), (20, 0));
+    let second = store.import(&as_log(&recs(2_000_000)), "b", None).unwrap();
+    assert_eq!((second.new_records, second.conflicts), (0, 20));
+    assert_eq!(store.records("hb-c").unwrap(), recs(1_000_000));
+    let probs = store.problems("hb-c").unwrap();
+    assert_eq!(probs.len(), 20);
+    assert!(probs[0].3.contains("different contents"));
+    let again = store.import(&as_log(&recs(1_000_000)), "a", None).unwrap();
+    assert_eq!((again.new_records, again.conflicts), (0, 0));
+}
