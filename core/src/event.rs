@@ -369,6 +369,15 @@ pub enum EventBody {
         /// Accepted, or why not.
         outcome: CommandOutcome,
     },
+    /// Rain counted by the gauge over the `window_s` seconds ending at the record's time
+    /// (an interval total; the desktop review rebuilds storm depths and peak intensities
+    /// from these). Appended after `RemoteCommand`: variant index 9.
+    RainTotal {
+        /// Length of the interval, s (> 0).
+        window_s: u32,
+        /// Depth counted in it, mm.
+        depth_mm: f32,
+    },
 }
 
 /// One log record: sequence number, time and what happened.
@@ -752,6 +761,26 @@ mod tests {
             .unwrap();
             assert_eq!(buf[4], idx, "{body:?}");
         }
+    }
+
+    /// The appended `RainTotal` variant takes index 9 (after `CommandRejected` 7 and `RemoteCommand` 8) and leaves every earlier layout as
+    /// pinned above. Bytes by the postcard 1.x wire spec: seq 2, time 300 = varint
+    /// [0xAC, 0x02], variant 9, window 300 = [0xAC, 0x02], 1.5 f32 LE = 0x3FC00000.
+    #[test]
+    fn golden_bytes_rain_total() {
+        let rec = EventRecord {
+            seq: 2,
+            time_s: 300,
+            body: EventBody::RainTotal {
+                window_s: 300,
+                depth_mm: 1.5,
+            },
+        };
+        let mut buf = [0u8; MAX_FRAME_LEN];
+        let n = encode(&rec, &mut buf).unwrap();
+        let payload = [0x02, 0xAC, 0x02, 0x09, 0xAC, 0x02, 0x00, 0x00, 0xC0, 0x3F];
+        assert_eq!(&buf[2..n - 4], &payload);
+        assert_eq!(decode_exact(&buf[..n]), Ok(rec));
     }
 
     #[test]

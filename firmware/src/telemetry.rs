@@ -296,6 +296,10 @@ impl Serialize for EventMessage<'_> {
                 m.serialize_field("command", &kind)?;
                 m.serialize_field("outcome", outcome_word(outcome))?;
             }
+            EventBody::RainTotal { window_s, depth_mm } => {
+                m.serialize_field("window_s", &window_s)?;
+                m.serialize_field("depth_um", &scaled(depth_mm, MILLI))?;
+            }
         }
         m.end()
     }
@@ -313,6 +317,7 @@ pub fn event_word(body: &EventBody) -> &'static str {
         EventBody::Sample { .. } => "sample",
         EventBody::CommandRejected { .. } => "command_rejected",
         EventBody::RemoteCommand { .. } => "remote_command",
+        EventBody::RainTotal { .. } => "rain_total",
     }
 }
 
