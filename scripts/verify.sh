@@ -67,6 +67,12 @@ rm -rf "$probe_dir"
 FLASH_BUDGET_BYTES=$((96 * 1024)) RAM_BUDGET_BYTES=$((40 * 1024)) STACK_RESERVE_BYTES=$stack_bytes \
     bash scripts/size-report.sh "$board_elf"
 
+step "fleet store on a real PostgreSQL server (installed and started on loopback by the script)"
+bash scripts/pg-test.sh
+
+step "fleet report in headless Chromium (installed by the script when missing)"
+bash scripts/browser-test.sh
+
 step "short fuzz runs of every decoder and parser of outside input (cargo fuzz, no sanitizer)"
 if ! cargo fuzz --version >/dev/null 2>&1; then
     echo "cargo-fuzz is missing: cargo install cargo-fuzz --locked (.ci/run does this)" >&2

@@ -38,6 +38,9 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// The asset manager's side: decode device logs and dumps, import them into the fleet
+    /// store (SQLite file or PostgreSQL), storm summaries, fleet questions and the fleet report.
+    Fleet(holdback_review::cli::FleetArgs),
     /// Run the built-in demo pond: rating table, a 10-year design storm routed under the
     /// gate controller, the forecast at the heaviest rain next to what happened, and the
     /// controller, baselines and bound side by side (no arguments needed).
@@ -251,6 +254,12 @@ fn load(path: &Path) -> Result<Pond, Fail> {
 
 fn dispatch(cmd: Command) -> Result<u8, Fail> {
     match cmd {
+        Command::Fleet(args) => match holdback_review::cli::run(args) {
+            Ok(code) if code == ExitCode::SUCCESS => Ok(0),
+            // A log had problems; they were reported on stderr and the rest was used.
+            Ok(_) => Ok(2),
+            Err(e) => Err(bad(e.to_string())),
+        },
         Command::Demo { out, write_pond } => {
             if let Some(p) = write_pond {
                 std::fs::write(&p, DEMO_POND)
