@@ -50,6 +50,9 @@ pub enum Stamp {
     Start,
 }
 
+/// Most intervals one rain record may span (60 million: 114 years of 1-minute steps).
+pub const MAX_RECORD_STEPS: i64 = 60_000_000;
+
 /// How to read a rain file.
 #[derive(Debug, Clone)]
 pub struct RainFormat {
@@ -310,6 +313,19 @@ pub fn parse(text: &str, fmt: &RainFormat) -> Result<RainRecord, String> {
     };
     let dt = i64::from(fmt.interval_s);
     let t0 = t0.div_euclid(dt) * dt;
+    // Rows are in time order (a row going backwards is refused above), so the last one ends
+    // the record. A stray far-off timestamp must give an error, not a record of billions of
+    // dry steps.
+    if let Some(&(last_line, last, _)) = rows.last() {
+        let steps = (last - t0).div_euclid(dt).saturating_add(1);
+        if steps > MAX_RECORD_STEPS {
+            return Err(format!(
+                "line {last_line}: the record would span {steps} intervals of {dt} s from the \
+                 first data row, more than {MAX_RECORD_STEPS} (about 114 years of 1-minute \
+                 steps); check the time column and format, or split the file"
+            ));
+        }
+    }
     let mut rain: Vec<f64> = Vec::new();
     let mut gaps = Vec::new();
     let mut prev: Option<(usize, i64)> = None;
@@ -433,6 +449,16 @@ mod tests {
         assert_eq!(r.gaps[0].missing_s, 300);
         assert_eq!((r.gaps[1].after_line, r.gaps[1].before_line), (4, 5));
         assert_eq!(r.gaps[1].missing_s, 600);
+    }
+
+    /// A stray far-off timestamp (found by fuzzing: it made the reader allocate gigabytes of
+    /// dry steps) is an error naming its line, not a giant record.
+    #[test]
+    fn a_record_spanning_millennia_is_refused_with_its_line() {
+        let text = "t,mm\n2020-01-01 00:00,1.0\n9999-12-31 00:00,1.0\n";
+        let e = parse(text, &fmt()).unwrap_err();
+        assert!(e.starts_with("line 3:"), "{e}");
+        assert!(e.contains("intervals of 300 s"), "{e}");
     }
 
     #[test]
