@@ -207,21 +207,9 @@ impl StageMonitor {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::rain::GaugeSettings;
 
     fn limits() -> SensorLimits {
-        SensorLimits {
-            stage_min_m: -0.5,
-            stage_max_m: 5.0,
-            max_stage_rate_m_s: 0.002,
-            spike_m: 0.1,
-            noise_m: 0.01,
-            stuck_s: 600,
-            missing_steps: 6,
-            position_tolerance_m: 0.01,
-            move_timeout_s: 60,
-            gauge: GaugeSettings::default(),
-        }
+        super::super::test_sensor_limits()
     }
 
     #[test]

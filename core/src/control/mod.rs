@@ -955,3 +955,20 @@ impl Controller {
         }
     }
 }
+
+/// Sensor limits shared by the unit tests of the stage filter and the fault tracker.
+#[cfg(test)]
+fn test_sensor_limits() -> crate::config::SensorLimits {
+    crate::config::SensorLimits {
+        stage_min_m: -0.5,
+        stage_max_m: 5.0,
+        max_stage_rate_m_s: 0.002,
+        spike_m: 0.1,
+        noise_m: 0.01,
+        stuck_s: 600,
+        missing_steps: 6,
+        position_tolerance_m: 0.01,
+        move_timeout_s: 60,
+        gauge: crate::rain::GaugeSettings::default(),
+    }
+}
