@@ -395,6 +395,42 @@ impl<const N: usize> RainGauge<N> {
         counted
     }
 
+    /// `count` tips counted over the `interval_s` seconds ending at `end_s` (a pulse counter
+    /// read once per control step), spread evenly over the interval (never before the last
+    /// time the gauge saw), so that the plausible-rate check judges their mean rate over the
+    /// interval and not a same-second burst. Tips beyond what the plausible rate allows over
+    /// the interval (plus the two-bucket credit) are chatter. Returns how many were counted.
+    pub fn record_tips_over(&mut self, end_s: u32, interval_s: u32, count: u32) -> u32 {
+        let from = match self.origin_s {
+            Some(_) => end_s.saturating_sub(interval_s).max(self.latest_s),
+            None => end_s.saturating_sub(interval_s),
+        };
+        let span = end_s.saturating_sub(from);
+        if span <= 1 || count <= 1 || end_s < self.latest_s {
+            return self.record_tips(end_s, count);
+        }
+        let bucket = self.settings.bucket_mm;
+        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+        let plausible = (self.max_rate_mm_s() * span as f32 / bucket) as u32;
+        let n = count.min(plausible.saturating_add(3));
+        let mut counted = 0u32;
+        for k in 1..=n {
+            let at = u64::from(span)
+                .saturating_mul(u64::from(k))
+                .checked_div(u64::from(n))
+                .unwrap_or(0);
+            let t = from.saturating_add(u32::try_from(at).unwrap_or(span));
+            if self.record_tip(t) == TipOutcome::Counted {
+                counted = counted.saturating_add(1);
+            }
+        }
+        if count > n {
+            self.chatter_tips = self.chatter_tips.saturating_add(count.saturating_sub(n));
+            self.last_chatter_s = Some(end_s);
+        }
+        counted
+    }
+
     /// A rain total `depth_mm` over the interval of `interval_s` ending at `end_s` (e.g. a
     /// 5-min total), spread uniformly over the interval.
     pub fn record_interval(
@@ -609,6 +645,42 @@ mod tests {
         };
         assert_eq!(p.depth_in(99, 100), 0.2);
         assert_eq!(p.depth_in(100, 200), 0.0);
+    }
+
+    /// Tips read as one count per 10-s control step: at 300 mm/h (4–5 tips of 0.2 mm per
+    /// read, under the 500 mm/h plausible rate) every tip counts and none is chatter, which a
+    /// same-second burst of the same count would not allow (two buckets of credit); at
+    /// 7 200 mm/h (100 tips in 10 s) what exceeds the plausible rate is chatter.
+    #[test]
+    fn batched_tips_are_judged_at_their_mean_rate() {
+        let s = GaugeSettings::default();
+        let mut g = RainGauge::<256>::new(&s, &[300]).unwrap();
+        let mut counted = 0;
+        let mut sent = 0;
+        let mut carry = 0.0_f32;
+        for k in 1..=60u32 {
+            carry += 300.0 / 3600.0 * 10.0;
+            let n = (carry / 0.2 + 1e-4) as u32;
+            carry -= n as f32 * 0.2;
+            sent += n;
+            counted += g.record_tips_over(k * 10, 10, n);
+        }
+        assert_eq!(counted, sent);
+        assert!(!g.status(600).chatter);
+        let r = g.reading(600, 300);
+        assert!((r.intensity_mm_h - 300.0).abs() < 10.0, "{r:?}");
+        // The same 5 tips stamped in one second: only what two buckets of credit allow.
+        let mut h = RainGauge::<64>::new(&s, &[300]).unwrap();
+        h.record_tips(10, 1);
+        assert!(h.record_tips(20, 5) < 5);
+        // A stuck contact: 100 tips in 10 s.
+        let mut c = RainGauge::<64>::new(&s, &[300]).unwrap();
+        c.record_tips_over(10, 10, 1);
+        let got = c.record_tips_over(20, 10, 100);
+        // Counted up to the plausible rate (500 mm/h · 10 s / 0.2 mm ≈ 7 tips, plus the
+        // two-bucket credit), the rest is chatter.
+        assert!(got <= 9, "{got}");
+        assert!(c.status(20).chatter);
     }
 
     /// Interval totals read back exactly over windows aligned with the intervals.
