@@ -189,7 +189,27 @@ pub enum FutureRain {
         /// Rain depth of the event so far, mm.
         depth_so_far_mm: f32,
     },
+    /// The event keeps to the shape of the IDF's depth–duration curve through what has
+    /// fallen so far: with `D(t)` the depth of the most frequent tabulated return period at
+    /// duration `t` and `e` the time since the event began, the event's cumulative depth at
+    /// `e + τ` is `depth_so_far · D(e + τ) / D(e)` (for `τ ≤ for_s`; no rain after). An event
+    /// as rare as the curve at every duration (a Keifer–Chu storm of one return period
+    /// follows its IDF curve at every duration up to its own length) is continued at the
+    /// rate the curve's slope allows, which falls off with duration, rather than at its peak
+    /// rate. `e` counts as at least [`FOLLOW_MIN_ELAPSED_S`].
+    FollowIdf {
+        /// Time since the event began, s.
+        elapsed_s: u32,
+        /// Rain depth of the event so far, mm.
+        depth_so_far_mm: f32,
+        /// How long it lasts from now, s.
+        for_s: u32,
+    },
 }
+
+/// Shortest elapsed time [`FutureRain::FollowIdf`] scales from, s (below it one tip is too
+/// much of the depth so far).
+pub const FOLLOW_MIN_ELAPSED_S: u32 = 300;
 
 /// Predicted inflow to the pond: one step mean (m³/s) per forecast step, from now on.
 #[derive(Debug, Clone, PartialEq)]
@@ -377,6 +397,15 @@ enum FutureSteps<'a> {
         dt_s: u32,
         cum_mm: f32,
     },
+    Follow {
+        idf: &'a dyn Idf,
+        return_period_yr: f32,
+        ratio: f32,
+        t_s: u32,
+        end_s: u32,
+        dt_s: u32,
+        prev_mm: f32,
+    },
 }
 
 impl<'a> FutureSteps<'a> {
@@ -409,6 +438,30 @@ impl<'a> FutureSteps<'a> {
                     t_s: elapsed_s,
                     dt_s,
                     cum_mm: sane(depth_so_far_mm),
+                })
+            }
+            FutureRain::FollowIdf {
+                elapsed_s,
+                depth_so_far_mm,
+                for_s,
+            } => {
+                let idf = idf.ok_or(ForecastError::NoIdf)?;
+                let return_period_yr = idf.return_periods_years().first().copied().unwrap_or(0.0);
+                let e = elapsed_s.max(FOLLOW_MIN_ELAPSED_S);
+                let d_e = sane(idf.depth_mm(secs(e) / 60.0, return_period_yr));
+                let ratio = if d_e > 0.0 {
+                    sane(depth_so_far_mm) / d_e
+                } else {
+                    0.0
+                };
+                Some(FutureSteps::Follow {
+                    idf,
+                    return_period_yr,
+                    ratio,
+                    t_s: e,
+                    end_s: e.saturating_add(for_s),
+                    dt_s,
+                    prev_mm: d_e,
                 })
             }
         })
@@ -445,6 +498,28 @@ impl<'a> FutureSteps<'a> {
                 } else {
                     0.0
                 }
+            }
+            FutureSteps::Follow {
+                idf,
+                return_period_yr,
+                ratio,
+                t_s,
+                end_s,
+                dt_s,
+                prev_mm,
+            } => {
+                if *t_s >= *end_s {
+                    return 0.0;
+                }
+                *t_s = t_s.saturating_add(*dt_s).min(*end_s);
+                let d = sane(idf.depth_mm(secs(*t_s) / 60.0, *return_period_yr));
+                let r = if d > *prev_mm {
+                    *ratio * (d - *prev_mm)
+                } else {
+                    0.0
+                };
+                *prev_mm = d;
+                r
             }
         }
     }
@@ -956,6 +1031,78 @@ pub fn predict_release_traced(
     p
 }
 
+/// Whether the decision to open above the permit can still wait: routes the first
+/// `wait_steps` forecast steps of `outlook` with the release capped at `limits.permit_m3s`
+/// ([`Policy::CapRelease`]) and the rest with the gate full open, from `storage_m3`.
+///
+/// If this prediction holds the stage limit, the controller may keep to the permit for
+/// `wait_steps` more steps and still hold the limit afterwards, so nothing is lost by waiting
+/// for a fresher forecast (the "last responsible moment" rule: an exceedance is never started
+/// on a forecast that a later, better one may withdraw, as long as waiting costs no safety).
+/// When `wait_steps` covers the whole outlook this is [`predict`] at the permit.
+///
+/// The result is one prediction over the whole horizon: peak, first crossings and volumes
+/// of both parts, times from now.
+pub fn predict_deferred(
+    pond: &StageStorage,
+    outlet: &Outlet,
+    storage_m3: f32,
+    outlook: &Outlook,
+    wait_steps: usize,
+    limits: &Limits,
+) -> Prediction {
+    let at_permit = Policy::CapRelease {
+        cap_m3s: limits.permit_m3s,
+    };
+    let k = wait_steps.min(outlook.steps());
+    let (Some(first), Some(rest)) = (outlook.inflow_m3s.get(..k), outlook.inflow_m3s.get(k..))
+    else {
+        return predict(pond, outlet, storage_m3, outlook, at_permit, limits);
+    };
+    if rest.is_empty() {
+        return predict(pond, outlet, storage_m3, outlook, at_permit, limits);
+    }
+    let part = |inflow: &[f32]| Outlook {
+        step_s: outlook.step_s,
+        inflow_m3s: inflow.iter().copied().collect(),
+        future_rain_mm: 0.0,
+    };
+    let open = Policy::Fixed {
+        opening_m: outlet.max_opening_m(),
+    };
+    if first.is_empty() {
+        return predict(pond, outlet, storage_m3, outlook, open, limits);
+    }
+    let a = predict(pond, outlet, storage_m3, &part(first), at_permit, limits);
+    let b = predict(pond, outlet, a.end_storage_m3, &part(rest), open, limits);
+    let offset = outlook
+        .step_s
+        .saturating_mul(u32::try_from(k).unwrap_or(u32::MAX));
+    let later = |t: Option<u32>| t.map(|t| t.saturating_add(offset));
+    let (peak_stage_m, peak_storage_m3, peak_at_s) = if b.peak_stage_m > a.peak_stage_m {
+        (
+            b.peak_stage_m,
+            b.peak_storage_m3,
+            b.peak_at_s.saturating_add(offset),
+        )
+    } else {
+        (a.peak_stage_m, a.peak_storage_m3, a.peak_at_s)
+    };
+    Prediction {
+        peak_stage_m,
+        peak_storage_m3,
+        peak_at_s,
+        peak_release_m3s: a.peak_release_m3s.max(b.peak_release_m3s),
+        end_storage_m3: b.end_storage_m3,
+        end_stage_m: b.end_stage_m,
+        first_over_permit_s: a.first_over_permit_s.or(later(b.first_over_permit_s)),
+        first_over_limit_s: a.first_over_limit_s.or(later(b.first_over_limit_s)),
+        reaches_crest: a.reaches_crest || b.reaches_crest,
+        released_m3: a.released_m3 + b.released_m3,
+        inflow_m3: a.inflow_m3 + b.inflow_m3,
+    }
+}
+
 /// The release cap [`release_to_hold`] found.
 #[derive(Debug, Clone, Copy, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -1070,6 +1217,57 @@ mod tests {
         );
         assert!((p.end_storage_m3 - 360.0).abs() < 1e-2, "{p:?}");
         assert_eq!(p.released_m3, 0.0);
+    }
+
+    /// The deferred prediction is the permit run when the wait covers the horizon, the
+    /// full-open run when it is zero, conserves volume (start + inflow − released = end, the
+    /// continuity of the level-pool equation) and peaks no lower the longer the wait (the
+    /// permit release is at most the full-open release at every stage, so by comparison of
+    /// the two storage equations the later switch leaves at least as much water).
+    #[test]
+    fn deferred_prediction_bounds_and_continuity() {
+        let q: [f32; 40] = core::array::from_fn(|k| if k < 12 { 1.2 } else { 0.05 });
+        let look = Outlook::from_samples(180, &q).unwrap();
+        let lim = Limits::new(0.1, 2.0, 3.0).unwrap();
+        let (pond, o) = (box_pond(), outlet());
+        let at_permit = predict(
+            &pond,
+            &o,
+            50.0,
+            &look,
+            Policy::CapRelease { cap_m3s: 0.1 },
+            &lim,
+        );
+        let open = predict(
+            &pond,
+            &o,
+            50.0,
+            &look,
+            Policy::Fixed { opening_m: 0.5 },
+            &lim,
+        );
+        assert_eq!(
+            predict_deferred(&pond, &o, 50.0, &look, 40, &lim),
+            at_permit
+        );
+        assert_eq!(
+            predict_deferred(&pond, &o, 50.0, &look, 99, &lim),
+            at_permit
+        );
+        assert_eq!(predict_deferred(&pond, &o, 50.0, &look, 0, &lim), open);
+        let mut last_peak = open.peak_stage_m;
+        for k in 1..40 {
+            let p = predict_deferred(&pond, &o, 50.0, &look, k, &lim);
+            let balance = 50.0 + p.inflow_m3 - p.released_m3 - p.end_storage_m3;
+            assert!(balance.abs() < 0.05, "k {k}: balance {balance} m3");
+            assert!((p.inflow_m3 - look.volume_m3()).abs() < 0.05, "k {k}");
+            assert!(p.peak_stage_m >= last_peak - 1e-4, "k {k}: {p:?}");
+            assert!(p.peak_stage_m <= at_permit.peak_stage_m + 1e-4, "k {k}");
+            last_peak = p.peak_stage_m;
+        }
+        // Waiting one step still holds this storm; waiting the whole storm does not.
+        assert!(!at_permit.holds(&lim));
+        assert!(predict_deferred(&pond, &o, 50.0, &look, 1, &lim).holds(&lim));
     }
 
     /// The capped release never exceeds max(cap, fixed flow) and the hold cap is ≥ permit.

@@ -130,6 +130,12 @@ pub fn fma(x: f32, y: f32, z: f32) -> f32 {
     libm::fmaf(x, y, z)
 }
 
+/// Smallest integer value ≥ `x` (libm `ceilf`; exact on every target).
+#[inline]
+pub fn ceil(x: f32) -> f32 {
+    libm::ceilf(x)
+}
+
 /// `x` clamped to `[lo, hi]`; NaN becomes `lo` so that a NaN can never leak through a clamp
 /// into a command. Requires `lo <= hi` (if not, returns `lo`).
 #[inline]
