@@ -9,6 +9,7 @@
 
 use holdback_core::config::PondConfig;
 use holdback_core::control::Mode;
+use holdback_core::rain::{DesignStorm, Pattern};
 use holdback_tests::plant::{
     self, ControllerDriver, Injection, PlantOptions, Summary, block_storm, min_cap_to_hold,
     perfect_foresight, triangle_storm,
@@ -31,12 +32,31 @@ pub fn storms(cfg: &PondConfig) -> Vec<(String, Vec<f32>)> {
         v.push((format!("block T={t} d={d}min"), block_storm(idf, t, d, dt)));
         v.push((format!("tri T={t} d={d}min"), triangle_storm(idf, t, d, dt)));
     }
+    // Chicago storms (Keifer–Chu): a sharp peak then a long recession, where a persisted
+    // intensity overestimates what is still to come.
+    for (t, d) in [(2.0, 120), (10.0, 60), (10.0, 180), (100.0, 60)] {
+        v.push((format!("chicago T={t} d={d}min"), chicago_storm(cfg, t, d)));
+    }
     // Beyond the design storms: twice the 100-year hour, to exercise surcharge.
     v.push((
         "2x block T=100 d=60min".into(),
         plant::scaled(&block_storm(idf, 100.0, 60, dt), 2.0),
     ));
     v
+}
+
+/// A Chicago storm (peak ratio 0.4) from the pond's IDF on its runoff step, mm per step.
+fn chicago_storm(cfg: &PondConfig, return_period_yr: f32, duration_min: u32) -> Vec<f32> {
+    let dt = cfg.catchment().dt_s();
+    let storm = DesignStorm::new(return_period_yr, duration_min * 60, dt)
+        .and_then(|s| s.with_peak_ratio(0.4))
+        .expect("design storm");
+    let mut buf = vec![0.0f32; storm.steps()];
+    let n = storm
+        .fill(cfg.idf(), Pattern::Chicago, &mut buf)
+        .expect("fill");
+    buf.truncate(n);
+    buf
 }
 
 fn run_controller<'a>(

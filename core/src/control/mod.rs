@@ -13,11 +13,21 @@
 //!
 //! 1. **Never overtop when avoidable.** A forecast ([`crate::forecast`]) at the permit target
 //!    runs every `forecast_every_s` while anything is happening (rain in the inter-event time,
-//!    runoff arriving, stage above the normal band). When it reaches crest − freeboard within
-//!    [`SURCHARGE_LEAD_S`] (later crossings wait for fresher forecasts), or the
-//!    measured stage is there, the mode is Surcharge and the release cap is
-//!    [`release_to_hold`]'s (full open when even that does not hold). A release above the
-//!    permit logs `PermitExceedance` with its reason and raises [`Alarms::PERMIT_EXCEEDED`].
+//!    runoff arriving, stage above the normal band). Its *likely* view of the rain to come is
+//!    the smaller of the [`LIKELY_WINDOW_S`] and [`PERSIST_WINDOW_S`] mean intensities for
+//!    `persistence_s`; its *upper* view, judged against the crest only, is the design-storm
+//!    continuation when `design_return_period_yr` is set (else the likely view). Surcharge
+//!    starts when holding the permit crosses crest − freeboard within [`SURCHARGE_LEAD_S`]
+//!    (likely view) or the crest at any time (upper view) **and** waiting does not pay:
+//!    [`forecast::predict_deferred`] — the permit for [`Controller::wait_steps`] more steps
+//!    (the next forecast, [`LEAD_S`] and the gate's full travel at its observed speed), then
+//!    full open — would not hold it; or when the measured stage is over the limit. The
+//!    release cap is then [`release_to_hold`]'s (full open when even that does not hold), and
+//!    Surcharge lasts while holding the permit would cross anywhere in the horizon. An
+//!    exceedance is thus never started on a forecast a fresher one may withdraw while waiting
+//!    is still safe (the persisted intensity overestimates a storm near its peak). A release
+//!    above the permit logs `PermitExceedance` with its reason and raises
+//!    [`Alarms::PERMIT_EXCEEDED`].
 //! 2. **Release ≤ permit × (1 − margin)** otherwise: the opening is the outlet rating's
 //!    inverse ([`Outlet::opening_for`]) at the filtered stage for the target, re-evaluated
 //!    every step, at the higher of the filtered and the latest reading carried forward on the
@@ -26,6 +36,9 @@
 //!    more than half the margin, the closing move is made at once.
 //! 3. **Use the storage well.** Capture releases the permit target from the first drop above
 //!    the normal level: the perfect-foresight schedule of the design notes, less the margin.
+//!    While even the full-open gate passes less, the gate is parked just above its
+//!    gate-clear opening (`clear_goal_m`, in [`PARK_STEPS`] steps), not full open, so a slow
+//!    gate is not still travelling through openings with no effect when the target binds.
 //! 4. **Drain in time.** Drawdown releases the permit target, or, with `min_detention_s` set,
 //!    the storage above normal spread over the time left until `rain end + min_detention_s`
 //!    (never emptying sooner). The time to drain at that release is estimated
@@ -43,7 +56,7 @@
 //! | Standby | at the normal level with no rain | rain counted → Capture; stage above the normal band by more than [`standby_hysteresis_m`] without rain → Drawdown | closed at or below normal, permit target above |
 //! | Capture | rain counted | no rain for `inter_event_s`, or no rain for [`QUIET_S`] and the forecast brings < 1 % of the stored volume → Drawdown | permit target (closed at or below normal) |
 //! | Drawdown | the storm is over | back within [`NORMAL_BAND_M`] of normal → Standby; rain → Capture | paced release (see 4) |
-//! | Surcharge | forecast at the permit target, or the stage, over crest − freeboard | forecast holds again and the stage is under the limit → automatic mode | cap from `release_to_hold`, full open if infeasible; moves are urgent |
+//! | Surcharge | forecast at the permit target over crest − freeboard (within [`SURCHARGE_LEAD_S`]) or the crest, with waiting unable to hold it; or the stage over crest − freeboard | holding the permit holds over the whole horizon again and the stage is under the limit → automatic mode | cap from `release_to_hold`, full open if infeasible; moves are urgent |
 //! | Failsafe | a stage fault (not a spike) or any gate fault | every such fault cleared → automatic mode | `max(safe opening, surcharge opening)`; without a trusted stage, full open when the model-estimated pond (last good storage routed with the runoff inflow) is forecast over the limit |
 //! | Manual | a valid `Command::Manual` | `for_s` runs out or `Command::Resume` → automatic mode; Surcharge needed → Surcharge (the override is cancelled) | the operator's opening |
 //!
@@ -88,7 +101,9 @@ use heapless::{Deque, Vec};
 
 use crate::config::PondConfig;
 use crate::event::{AlarmKind, EventBody, ExceedReason};
-use crate::forecast::{self, FutureRain, Limits, Outlook, Policy, release_to_hold};
+use crate::forecast::{
+    self, FutureRain, Limits, Outlook, Policy, predict_deferred, release_to_hold,
+};
 use crate::hydraulics::Outlet;
 use crate::rain::{Idf, RainGauge};
 use crate::routing::{self, Inflow};
@@ -104,8 +119,24 @@ pub const MAX_EVENTS_PER_STEP: usize = 8;
 pub const EVENT_QUEUE: usize = 32;
 /// Rain records the controller's gauge keeps.
 pub const GAUGE_RECORDS: usize = 64;
-/// Window whose mean intensity the forecast assumes persists, s.
+/// Window whose mean intensity the forecast may assume persists, s (the smaller of this and
+/// the [`LIKELY_WINDOW_S`] mean is the one persisted).
 pub const PERSIST_WINDOW_S: u32 = 900;
+/// The short window of the likely view: after a burst's peak the 5-min mean falls first, s.
+pub const LIKELY_WINDOW_S: u32 = 300;
+
+/// Which view of the rain still to come a forecast takes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum View {
+    /// The drier of two assumptions: the recent intensity (the smaller of the 5- and 15-min
+    /// means) persisting for `persistence_s`, or the event following the IDF's
+    /// depth–duration shape ([`FutureRain::FollowIdf`]). Judged against crest − freeboard
+    /// (the freeboard absorbs the error when the storm grows).
+    Likely,
+    /// The wetter of the two (or the design-storm continuation when
+    /// `design_return_period_yr` is set): judged against the crest itself.
+    Upper,
+}
 /// Dry time after which the forecast may end a storm early ("no more inflow"), s.
 pub const QUIET_S: u32 = 900;
 /// Interval of the stage trend (rising stage for the gauge clog check, stage-based inflow), s.
@@ -137,6 +168,13 @@ pub const SURCHARGE_LEAD_S: u32 = 900;
 /// The permit-following opening is worked out at the stage expected this far ahead on the
 /// current rise (filter delay, gate travel), s.
 pub const LEAD_S: u32 = 60;
+/// While the gate cannot pass the target even full open, it is parked on whole
+/// `max_opening / PARK_STEPS` steps just above its gate-clear opening (see `clear_goal_m`).
+pub const PARK_STEPS: u32 = 12;
+/// Longest gate travel time the controller plans ahead for, s.
+pub const MAX_TRAVEL_LEAD_S: u32 = 900;
+/// Slowest gate speed the travel estimate assumes, m/s (below it the gate counts as stalled).
+pub const MIN_GATE_SPEED_M_S: f32 = 1.0e-4;
 /// Inflow or release above this share of the permit target means the stage should move (stuck
 /// check).
 pub const EXPECTED_CHANGE_SHARE: f32 = 0.05;
@@ -194,7 +232,8 @@ pub struct Alarms(pub u16);
 impl Alarms {
     /// Stage over crest − freeboard.
     pub const HIGH_STAGE: u16 = 1 << 0;
-    /// The forecast at the permit target reaches crest − freeboard.
+    /// The forecast at the permit target reaches crest − freeboard within
+    /// [`SURCHARGE_LEAD_S`], or the controller is releasing above the permit to hold it.
     pub const LOW_FREEBOARD: u16 = 1 << 1;
     /// Drawdown will end after its target time.
     pub const SLOW_DRAWDOWN: u16 = 1 << 2;
@@ -276,6 +315,7 @@ pub struct Outputs {
 
 #[derive(Debug, Clone, Copy, PartialEq)]
 struct ForecastState {
+    low_freeboard: bool,
     over_limit: bool,
     cap_m3s: f32,
     feasible: bool,
@@ -287,6 +327,7 @@ struct ForecastState {
 impl ForecastState {
     fn quiet(target_m3s: f32) -> Self {
         Self {
+            low_freeboard: false,
             over_limit: false,
             cap_m3s: target_m3s,
             feasible: true,
@@ -321,6 +362,8 @@ pub struct Controller {
     rising: bool,
     rise_m_s: f32,
     inflow_est_m3s: f32,
+    gate_speed_m_s: f32,
+    last_position_m: Option<f32>,
     manual: Option<(f32, u32)>,
     alarms_active: Alarms,
     alarms_latched: Alarms,
@@ -369,6 +412,8 @@ impl Controller {
             rising: false,
             rise_m_s: 0.0,
             inflow_est_m3s: 0.0,
+            gate_speed_m_s: cfg.control().max_rate_m_s,
+            last_position_m: None,
             manual: None,
             alarms_active: Alarms(0),
             alarms_latched: Alarms(0),
@@ -394,7 +439,7 @@ impl Controller {
     /// persistence, the design storm, or the stage-based estimate under a rain-gauge fault).
     /// For replays that compare the forecast with what happened; changes nothing.
     pub fn outlook_now(&self, cfg: &PondConfig, now_s: u32) -> Option<Outlook> {
-        self.outlook(cfg, now_s, self.faults.active().rain())
+        self.outlook(cfg, now_s, self.faults.active().rain(), View::Upper)
     }
 
     fn log(&mut self, e: EventBody) {
@@ -435,9 +480,9 @@ impl Controller {
         }
     }
 
-    fn rain(&mut self, cfg: &PondConfig, tips: u16, now_s: u32) -> bool {
+    fn rain(&mut self, cfg: &PondConfig, tips: u16, now_s: u32, dt_s: u32) -> bool {
         let counted = match self.gauge.as_mut() {
-            Some(g) => g.record_tips(now_s, u32::from(tips)),
+            Some(g) => g.record_tips_over(now_s, dt_s, u32::from(tips)),
             None => 0,
         };
         if counted > 0 {
@@ -458,7 +503,13 @@ impl Controller {
         counted > 0
     }
 
-    fn outlook(&self, cfg: &PondConfig, now_s: u32, rain_fault: bool) -> Option<Outlook> {
+    fn outlook(
+        &self,
+        cfg: &PondConfig,
+        now_s: u32,
+        rain_fault: bool,
+        view: View,
+    ) -> Option<Outlook> {
         let c = cfg.control();
         let idf: &dyn Idf = cfg.idf();
         if rain_fault {
@@ -484,28 +535,54 @@ impl Controller {
             return Outlook::from_samples(c.forecast_step_s, q.get(..base.steps())?).ok();
         }
         let event = self.gauge.as_ref().and_then(|g| g.current_event().copied());
-        let future = match event {
-            Some(ev) if c.design_return_period_yr > 0.0 => FutureRain::DesignStorm {
+        let intensity = |w: u32| {
+            self.gauge
+                .as_ref()
+                .map_or(0.0, |g| g.reading(now_s, w).intensity_mm_h)
+        };
+        let look = |future: &FutureRain| {
+            Outlook::from_time_area(
+                &self.runoff,
+                future,
+                Some(idf),
+                c.forecast_step_s,
+                c.horizon_s,
+            )
+            .ok()
+        };
+        if let (View::Upper, Some(ev)) = (view, event)
+            && c.design_return_period_yr > 0.0
+        {
+            return look(&FutureRain::DesignStorm {
                 return_period_yr: c.design_return_period_yr,
                 elapsed_s: now_s.saturating_sub(ev.start_s),
                 depth_so_far_mm: ev.depth_mm,
-            },
-            _ => FutureRain::Persist {
-                intensity_mm_h: self
-                    .gauge
-                    .as_ref()
-                    .map_or(0.0, |g| g.reading(now_s, PERSIST_WINDOW_S).intensity_mm_h),
-                for_s: c.persistence_s,
-            },
+            });
+        }
+        let persist = look(&FutureRain::Persist {
+            intensity_mm_h: intensity(LIKELY_WINDOW_S).min(intensity(PERSIST_WINDOW_S)),
+            for_s: c.persistence_s,
+        });
+        // Following the curve only while it rains (the 5-min mean is the latest word).
+        let Some(ev) = event.filter(|_| intensity(LIKELY_WINDOW_S) > 0.0) else {
+            return persist;
         };
-        Outlook::from_time_area(
-            &self.runoff,
-            &future,
-            Some(idf),
-            c.forecast_step_s,
-            c.horizon_s,
-        )
-        .ok()
+        let follow = look(&FutureRain::FollowIdf {
+            elapsed_s: now_s.saturating_sub(ev.start_s),
+            depth_so_far_mm: ev.depth_mm,
+            for_s: c.persistence_s,
+        });
+        match (persist, follow) {
+            (Some(p), Some(f)) => {
+                let follow_less = f.volume_m3() < p.volume_m3();
+                Some(if follow_less == (view == View::Likely) {
+                    f
+                } else {
+                    p
+                })
+            }
+            (p, f) => p.or(f),
+        }
     }
 
     fn run_forecast(&mut self, cfg: &PondConfig, now_s: u32, storage_m3: f32, stage_m: f32) {
@@ -521,21 +598,63 @@ impl Controller {
         let mut fc = ForecastState::quiet(target);
         let normal_m = cfg.levels().normal_m;
         let above_m3 = storage_m3 - pond.storage_m3(normal_m);
-        if let Some(look) = self.outlook(cfg, now_s, self.faults.active().rain()) {
+        let rain_fault = self.faults.active().rain();
+        let crest = Limits {
+            stage_limit_m: limits.crest_m,
+            ..limits
+        };
+        let wait = self.wait_steps(cfg);
+        let surcharging = self.mode == Mode::Surcharge;
+        // Open above the permit when holding to it would cross `lim` and waiting for the next
+        // forecast would leave even the full-open gate unable to hold it; once in Surcharge,
+        // stay while holding to the permit would cross it anywhere in the horizon.
+        let judge = |look: &Outlook, lim: &Limits, lead_s: u32| -> (forecast::Prediction, bool) {
             let p = forecast::predict(
                 pond,
                 outlet,
                 storage_m3,
-                &look,
+                look,
                 Policy::CapRelease { cap_m3s: target },
-                &limits,
+                lim,
             );
-            if p.first_over_limit_s.is_some_and(|t| t <= SURCHARGE_LEAD_S) {
-                let h = release_to_hold(pond, outlet, storage_m3, &look, &limits);
+            let act = p
+                .first_over_limit_s
+                .is_some_and(|t| surcharging || t <= lead_s)
+                && (surcharging
+                    || !predict_deferred(pond, outlet, storage_m3, look, wait, lim).holds(lim));
+            (p, act)
+        };
+        let likely = self.outlook(cfg, now_s, rain_fault, View::Likely);
+        let upper = if rain_fault {
+            None
+        } else {
+            self.outlook(cfg, now_s, rain_fault, View::Upper)
+        };
+        if let Some(look) = likely.as_ref() {
+            let (p, act) = judge(look, &limits, SURCHARGE_LEAD_S);
+            fc.low_freeboard = p.first_over_limit_s.is_some_and(|t| t <= SURCHARGE_LEAD_S);
+            if act {
+                let h = release_to_hold(pond, outlet, storage_m3, look, &limits);
                 fc.over_limit = true;
                 fc.cap_m3s = h.cap_m3s;
                 fc.feasible = h.feasible;
             }
+        }
+        // The crest against the upper view of the rain to come (the likely one under a gauge
+        // fault), with no lead: the crest is never left to a later forecast.
+        if let Some(look) = upper.as_ref().or(likely.as_ref())
+            && judge(look, &crest, u32::MAX).1
+        {
+            let h = release_to_hold(pond, outlet, storage_m3, look, &crest);
+            fc.cap_m3s = if fc.over_limit {
+                fc.cap_m3s.max(h.cap_m3s)
+            } else {
+                h.cap_m3s
+            };
+            fc.feasible = fc.feasible && h.feasible;
+            fc.over_limit = true;
+        }
+        if let Some(look) = upper.as_ref().or(likely.as_ref()) {
             let quiet = self
                 .last_rain_s
                 .is_none_or(|t| now_s.saturating_sub(t) >= QUIET_S);
@@ -557,6 +676,89 @@ impl Controller {
             }
         }
         self.fc = fc;
+    }
+
+    /// Forecast steps the decision to open above the permit may wait and still act in time
+    /// (see [`forecast::predict_deferred`]):
+    /// the next forecast, the lead of the permit-following opening and the gate's full
+    /// travel at its observed speed ([`Controller::gate_speed_m_s`]), rounded up.
+    pub fn wait_steps(&self, cfg: &PondConfig) -> usize {
+        let c = cfg.control();
+        let speed = self.gate_speed_m_s.max(MIN_GATE_SPEED_M_S);
+        let travel_s = crate::math::clamp(
+            cfg.outlet().max_opening_m() / speed,
+            0.0,
+            MAX_TRAVEL_LEAD_S as f32,
+        );
+        #[allow(clippy::cast_possible_truncation, clippy::cast_sign_loss)]
+        let wait_s = c
+            .forecast_every_s
+            .saturating_add(LEAD_S)
+            .saturating_add(travel_s as u32);
+        let step = c.forecast_step_s.max(1);
+        usize::try_from(wait_s.div_ceil(step)).unwrap_or(usize::MAX)
+    }
+
+    /// The gate's travel speed as last observed while it moved at its own pace toward a
+    /// command it had not reached, m/s (starts at `max_rate_m_s`, never above it).
+    pub fn gate_speed_m_s(&self) -> f32 {
+        self.gate_speed_m_s
+    }
+
+    /// Updates the observed gate speed: a gate that moved toward last step's command without
+    /// reaching it moved at its own top speed.
+    fn observe_gate(
+        &mut self,
+        cmd_m: f32,
+        position_m: f32,
+        gate_fault: bool,
+        dt_s: u32,
+        cfg: &PondConfig,
+    ) {
+        let limit = cfg.control().max_rate_m_s;
+        if let (Some(prev), false) = (self.last_position_m, gate_fault) {
+            let moved = position_m - prev;
+            let wanted = cmd_m - prev;
+            let tol = cfg.sensors().position_tolerance_m;
+            // Moving the commanded way, by more than the sensor's tolerance, and still short.
+            if moved * wanted > 0.0 && (cmd_m - position_m).abs() > tol && moved.abs() > tol * 0.5 {
+                let v = moved.abs() / dt_s.max(1) as f32;
+                self.gate_speed_m_s = crate::math::clamp(v, MIN_GATE_SPEED_M_S, limit);
+            }
+        }
+        self.last_position_m = Some(position_m);
+    }
+
+    /// The opening to hold while even the full-open gate passes less than the target: the
+    /// gate-clear opening at `stage_m` ([`crate::hydraulics::SluiceGate::clear_opening_m`])
+    /// rounded up to a whole [`PARK_STEPS`]th of the travel, kept while it is within two
+    /// such steps above that on a rise ([`RISE_M`] over [`TREND_S`]) and otherwise never
+    /// lowered. Higher openings pass the
+    /// same water; parking the gate just above the clear opening leaves it little travel
+    /// with no effect once the target starts to bind (with a slow gate that dead travel was
+    /// a permit exceedance on a fast rise), and the rounding bounds the moves.
+    fn clear_goal_m(&self, outlet: &Outlet, stage_m: f32, max_open: f32) -> f32 {
+        let Some(g) = outlet.gate() else {
+            return max_open;
+        };
+        let step = max_open / PARK_STEPS as f32;
+        if step.is_nan() || step <= 0.0 {
+            return max_open;
+        }
+        let clear = g.clear_opening_m(stage_m);
+        let q = crate::math::clamp(crate::math::ceil(clear / step) * step, 0.0, max_open);
+        let goal = self.act.goal_m();
+        if self.rising {
+            if goal >= q && goal <= q + 2.0 * step {
+                goal
+            } else {
+                q
+            }
+        } else if goal > q {
+            goal
+        } else {
+            q
+        }
     }
 
     fn storm_end_s(&self) -> u32 {
@@ -622,7 +824,7 @@ impl Controller {
         let sensors = cfg.sensors();
 
         self.command(cfg, inputs.command, now_s);
-        let rain_now = self.rain(cfg, inputs.rain_tips, now_s);
+        let rain_now = self.rain(cfg, inputs.rain_tips, now_s, dt_s);
 
         // Stage plausibility and filter.
         let prev_cmd = self.act.cmd_m();
@@ -669,6 +871,7 @@ impl Controller {
             Some(p) if p.is_finite() && !faults.gate() => crate::math::clamp(p, 0.0, max_open),
             _ => prev_cmd,
         };
+        self.observe_gate(prev_cmd, position_m, faults.gate(), dt_s, cfg);
 
         // The stage used: filtered when trusted, else the model estimate.
         let trusted = !faults.stage_untrusted();
@@ -810,7 +1013,10 @@ impl Controller {
                     } else {
                         (target, false)
                     };
-                    let (a, fit) = opening_for_target(outlet, h_lead, t);
+                    let (mut a, fit) = opening_for_target(outlet, h_lead, t);
+                    if fit == Fit::CapacityLimited {
+                        a = self.clear_goal_m(outlet, h_lead, max_open);
+                    }
                     let r = match (fit, paced) {
                         (Fit::FixedExceeds, true) => Reason::DetentionHold,
                         (Fit::FixedExceeds, false) => Reason::FixedExceedsTarget,
@@ -895,7 +1101,7 @@ impl Controller {
         set(gh > limit_m, Alarms::HIGH_STAGE, &mut active_alarms);
         set(gh >= crest_m, Alarms::OVERTOPPING, &mut active_alarms);
         set(
-            self.fc.over_limit,
+            self.fc.over_limit || self.fc.low_freeboard,
             Alarms::LOW_FREEBOARD,
             &mut active_alarms,
         );
