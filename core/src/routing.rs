@@ -121,27 +121,53 @@ fn sane_inflow(q: f32) -> f32 {
     if q.is_finite() && q > 0.0 { q } else { 0.0 }
 }
 
-/// Outlet discharge at the stage of storage `s`, with NaN/negative read as 0 and +∞ kept.
-fn outflow(pond: &StageStorage, outlet: &impl StageDischarge, s: f32) -> f32 {
-    let q = outlet.discharge_m3s(pond.stage_m(s));
-    if q > 0.0 { q } else { 0.0 }
+/// A storage with its stage and the outlet's discharge there, each computed once: the solver
+/// keeps the points it has evaluated so that no storage is looked up twice in one step.
+#[derive(Debug, Clone, Copy)]
+struct Point {
+    /// Storage, m³.
+    s: f32,
+    /// Stage at `s`, m.
+    h: f32,
+    /// Outlet discharge at `h`, NaN/negative read as 0 and +∞ kept, m³/s.
+    q: f32,
 }
 
-/// Solve `r(S) = S + w·O(S) − rhs = 0` on `[0, hi]`, where `r(0) < 0 ≤ r(hi)` is assumed by
-/// the caller. Bracketing false position with the Illinois modification, safeguarded by
-/// bisection: a trial point outside the bracket, or a bracket that has not halved in three
-/// steps, takes the midpoint instead, so the bracket shrinks at least as fast as bisection
-/// every three steps. Stops when |r| is at f32 rounding level, when the bracket cannot be
-/// split in f32, or after [`MAX_ITERATIONS`]. Returns the point with the smallest |r| seen.
-fn bisect(pond: &StageStorage, outlet: &impl StageDischarge, w: f32, rhs: f32, hi: f32) -> f32 {
-    let resid = |s: f32| s + w * outflow(pond, outlet, s) - rhs;
-    let (mut lo, mut hi) = (0.0_f32, hi);
-    let (mut r_lo, mut r_hi) = (resid(lo), resid(hi));
+/// The point of storage `s`: its stage and the outlet discharge there.
+fn point(pond: &StageStorage, outlet: &impl StageDischarge, s: f32) -> Point {
+    let h = pond.stage_m(s);
+    let q = outlet.discharge_m3s(h);
+    Point {
+        s,
+        h,
+        q: if q > 0.0 { q } else { 0.0 },
+    }
+}
+
+/// Solve `r(S) = S + w·O(S) − rhs = 0` on `[lo, hi]` (`lo` the empty pond), where
+/// `r(lo) < 0 ≤ r(hi)` is assumed by the caller. Bracketing false position with the Illinois
+/// modification, safeguarded by bisection: a trial point outside the bracket, or a bracket
+/// that has not halved in three steps, takes the midpoint instead, so the bracket shrinks at
+/// least as fast as bisection every three steps. Stops when |r| is at f32 rounding level,
+/// when the bracket cannot be split in f32, or after [`MAX_ITERATIONS`]. Returns the point
+/// with the smallest |r| seen, with its stage and discharge (the ends come in already
+/// evaluated, so no storage is looked up twice).
+fn bisect(
+    pond: &StageStorage,
+    outlet: &impl StageDischarge,
+    w: f32,
+    rhs: f32,
+    lo_point: Point,
+    hi_point: Point,
+) -> Point {
+    let resid = |p: &Point| p.s + w * p.q - rhs;
+    let (mut lo, mut hi) = (lo_point.s, hi_point.s);
+    let (mut r_lo, mut r_hi) = (resid(&lo_point), resid(&hi_point));
     let tol = 0.5 * f32::EPSILON * math::abs(rhs);
     let (mut best, mut best_r) = if -r_lo < r_hi {
-        (lo, -r_lo)
+        (lo_point, -r_lo)
     } else {
-        (hi, r_hi)
+        (hi_point, r_hi)
     };
     // Bracket widths of the last three steps, and whether the last step kept `lo` (true) or
     // `hi` (false): the Illinois bookkeeping.
@@ -164,9 +190,10 @@ fn bisect(pond: &StageStorage, outlet: &impl StageDischarge, w: f32, rhs: f32, h
         } else {
             mid
         };
-        let r = resid(x);
+        let px = point(pond, outlet, x);
+        let r = resid(&px);
         if math::abs(r) < best_r {
-            best = x;
+            best = px;
             best_r = math::abs(r);
         }
         if r < 0.0 {
@@ -192,6 +219,10 @@ fn bisect(pond: &StageStorage, outlet: &impl StageDischarge, w: f32, rhs: f32, h
 /// One level-pool routing step of `dt_s` seconds from `storage_m3`, with `inflow` over the
 /// step, through `outlet` (see the module doc for the scheme, its safeguard and the
 /// treatment of bad inputs).
+///
+/// Cost: each storage the solve visits is looked up once (stage, then discharge): the start,
+/// the empty pond, the end of the bracket (the start again when there is no inflow) and the
+/// solver's trial points; the end state reuses the chosen point.
 pub fn step(
     pond: &StageStorage,
     outlet: &impl StageDischarge,
@@ -207,11 +238,12 @@ pub fn step(
     // dt as f32: exact for every dt up to 2^24 s, rounded beyond (still finite).
     #[allow(clippy::cast_precision_loss)]
     let dt = dt_s as f32;
-    let o0 = outflow(pond, outlet, s0);
+    let p0 = point(pond, outlet, s0);
+    let o0 = p0.q;
     if dt_s == 0 {
         return StepResult {
             storage_m3: s0,
-            stage_m: pond.stage_m(s0),
+            stage_m: p0.h,
             outflow_m3s: o0,
             released_m3: 0.0,
             balance_error_m3: 0.0,
@@ -223,45 +255,53 @@ pub fn step(
     if !avail.is_finite() {
         avail = f32::MAX;
     }
-    let o_empty = outflow(pond, outlet, 0.0);
+    let p_empty = point(pond, outlet, 0.0);
+    let o_empty = p_empty.q;
+    // With no inflow the bracket's top is the start itself: same storage, same point.
+    let p_avail = if avail.to_bits() == s0.to_bits() {
+        p0
+    } else {
+        point(pond, outlet, avail)
+    };
 
-    let mut chosen: Option<(f32, Scheme)> = None;
+    let mut chosen: Option<(Point, Scheme)> = None;
 
     // 1. Trapezoid: S1 + dt/2·O1 = avail − dt/2·O0, on [0, avail].
     let half = 0.5 * dt;
     let rhs_tr = avail - half * o0;
     if rhs_tr.is_finite() && half * o_empty < rhs_tr {
-        let s1 = bisect(pond, outlet, half, rhs_tr, avail);
-        let o1 = outflow(pond, outlet, s1);
+        let p1 = bisect(pond, outlet, half, rhs_tr, p_empty, p_avail);
+        let (s1, o1) = (p1.s, p1.q);
         let ds = s1 - s0;
         let stiff = if ds != 0.0 { dt * (o1 - o0) / ds } else { 0.0 };
         let crossed_invert = o0 > 0.0 && o1 <= 0.0;
         if stiff.is_finite() && stiff <= TRAPEZOID_MAX_STIFFNESS && !crossed_invert {
-            chosen = Some((s1, Scheme::Trapezoid));
+            chosen = Some((p1, Scheme::Trapezoid));
         }
     }
 
     // 2. Backward Euler: S1 + dt·O1 = avail, on [0, avail].
-    let (s1, scheme) = match chosen {
+    let (p1, scheme) = match chosen {
         Some(c) => c,
         None => {
             if dt * o_empty < avail {
                 (
-                    bisect(pond, outlet, dt, avail, avail),
+                    bisect(pond, outlet, dt, avail, p_empty, p_avail),
                     Scheme::BackwardEuler,
                 )
             } else {
-                (0.0, Scheme::Emptied)
+                (p_empty, Scheme::Emptied)
             }
         }
     };
+    let s1 = p1.s;
 
     let released = avail - s1;
     let released = if released > 0.0 { released } else { 0.0 };
     StepResult {
         storage_m3: s1,
-        stage_m: pond.stage_m(s1),
-        outflow_m3s: outflow(pond, outlet, s1),
+        stage_m: p1.h,
+        outflow_m3s: p1.q,
         released_m3: released,
         balance_error_m3: s1 - (avail - released),
         scheme,

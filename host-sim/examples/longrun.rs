@@ -12,7 +12,9 @@
 //! cargo run --release -p holdback-sim --example longrun -- [DWD_CSV] [YEARS] [rating.csv]
 //! ```
 //! With a third argument it also writes the fixed outlet's stage–storage–discharge table and
-//! the 1-minute inflow of the first year for `host-sim/bench/level_pool.py`.
+//! the 1-minute inflow of the first year for `host-sim/bench/level_pool.py`. With
+//! `LONGRUN_POLICY=fixed` or `controller` in the environment only that run is made (for
+//! instruction counts, `scripts/icount-longrun.sh`).
 
 use std::time::Instant;
 
@@ -98,16 +100,22 @@ fn main() {
         record_s: 86_400,
         forecast_at_s: Vec::new(),
     };
-    for kind in [PolicyKind::Fixed, PolicyKind::Controller] {
+    let only = std::env::var("LONGRUN_POLICY").ok();
+    for kind in [PolicyKind::Fixed, PolicyKind::Controller]
+        .into_iter()
+        .filter(|k| only.as_deref().is_none_or(|o| o == k.name()))
+    {
         let t0 = Instant::now();
         let r = sim::run(&pond, &storm, kind, &opts);
         let wall = t0.elapsed().as_secs_f64();
         let sim_s = r.length_s as f64;
         println!(
-            "{:<10} simulated {:.1} years in {wall:.2} s wall: {:.3e} simulated s per wall s \
-             ({:.0} ns per 60-s step); peak stage {:.3} m, {} events, time over permit {} s",
+            "{:<10} simulated {:.1} years ({} steps) in {wall:.2} s wall: {:.3e} simulated s \
+             per wall s ({:.0} ns per 60-s step); peak stage {:.3} m, {} events, time over \
+             permit {} s",
             kind.name(),
             sim_s / 365.25 / 86_400.0,
+            r.length_s / 60,
             sim_s / wall,
             wall * 1e9 / (sim_s / 60.0),
             r.peak_stage_m,

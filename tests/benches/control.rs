@@ -11,7 +11,7 @@ use std::hint::black_box;
 use criterion::{BatchSize, Criterion};
 use holdback_core::config::PondConfig;
 use holdback_core::control::{Controller, Inputs, Outputs};
-use holdback_tests::plant::{self, Driver, Injection, PlantOptions, block_storm};
+use holdback_tests::closed_loop::{self, Driver, Injection, PlantOptions, block_storm};
 use holdback_tests::ponds;
 
 /// A controller 30 min into a rising storm: (state, inputs, time) for the next step without
@@ -98,7 +98,7 @@ fn storm_run(cfg: &PondConfig) -> (u32, u32) {
         steps: 0,
         forecasts: 0,
     };
-    plant::run(
+    closed_loop::run(
         cfg,
         &rain,
         &mut d,

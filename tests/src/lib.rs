@@ -5,8 +5,8 @@
 //! `f32` core, and readers for the committed reference tables under `reference/`.
 //! The checks themselves are in `tests/`; benchmarks in `benches/`.
 
+pub mod closed_loop;
 pub mod hydraulics64;
-pub mod plant;
 pub mod ponds;
 pub mod rain64;
 pub mod refdata;

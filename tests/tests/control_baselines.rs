@@ -11,7 +11,7 @@
 //! at least one of (a)–(c) or has a peak stage no lower than the controller's. Peak stage
 //! alone is not "beaten": a baseline that releases above the permit may well peak lower.
 
-use holdback_tests::plant::{
+use holdback_tests::closed_loop::{
     self, ControllerDriver, Driver, FixedDriver, Injection, PlantOptions, Summary, ThresholdDriver,
     block_storm, perfect_foresight, triangle_storm,
 };
@@ -52,14 +52,14 @@ fn controller_beats_fixed_outlet_and_threshold_rule() {
                 let meetable = perfect_foresight(&cfg, &rain, cfg.permit().release_m3s).0 <= limit;
                 let opt = PlantOptions::default();
                 let mut c = ControllerDriver::new(&cfg);
-                let (sc, _) = plant::run(&cfg, &rain, &mut c, opt, (Injection::None, 0));
+                let (sc, _) = closed_loop::run(&cfg, &rain, &mut c, opt, (Injection::None, 0));
                 let mut f = FixedDriver(open);
-                let (sf, _) = plant::run(&cfg, &rain, &mut f, opt, (Injection::None, 0));
+                let (sf, _) = closed_loop::run(&cfg, &rain, &mut f, opt, (Injection::None, 0));
                 let mut th = ThresholdDriver {
                     threshold_m: normal + 0.5 * (limit - normal),
                     open_m: open,
                 };
-                let (st, _) = plant::run(&cfg, &rain, &mut th, opt, (Injection::None, 0));
+                let (st, _) = closed_loop::run(&cfg, &rain, &mut th, opt, (Injection::None, 0));
                 row(&label, "control", &sc);
                 row(&label, "fixed", &sf);
                 row(&label, "threshold", &st);

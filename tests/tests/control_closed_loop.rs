@@ -1,16 +1,18 @@
 //! Closed-loop checks of the controller on the invented demo ponds (tests/src/ponds.rs) with
-//! the plant of tests/src/plant.rs. Sources of the bounds:
+//! the core plant (`holdback_core::plant::Plant`) driven by tests/src/closed_loop.rs.
+//! Sources of the bounds:
 //! - the perfect-foresight permit schedule of DESIGN.md ("How good the control is"): release
 //!   = min(permit, full-open capacity) from the first drop gives the lowest peak storage of any
 //!   permit-respecting policy; computed with `forecast::step_capped` over the whole storm;
-//! - continuity (the plant conserves volume: `routing::step`).
+//! - continuity (the plant conserves volume: `routing::step` inside `Plant::step`).
 //!
-//! Storms are built from each pond's IDF as uniform blocks and symmetric triangles.
+//! Storms are built from each pond's IDF as uniform blocks, symmetric triangles and Chicago
+//! (Keifer–Chu) storms.
 
 use holdback_core::config::PondConfig;
 use holdback_core::control::Mode;
 use holdback_core::rain::{DesignStorm, Pattern};
-use holdback_tests::plant::{
+use holdback_tests::closed_loop::{
     self, ControllerDriver, Injection, PlantOptions, Summary, block_storm, min_cap_to_hold,
     perfect_foresight, triangle_storm,
 };
@@ -40,7 +42,7 @@ pub fn storms(cfg: &PondConfig) -> Vec<(String, Vec<f32>)> {
     // Beyond the design storms: twice the 100-year hour, to exercise surcharge.
     v.push((
         "2x block T=100 d=60min".into(),
-        plant::scaled(&block_storm(idf, 100.0, 60, dt), 2.0),
+        closed_loop::scaled(&block_storm(idf, 100.0, 60, dt), 2.0),
     ));
     v
 }
@@ -65,7 +67,7 @@ fn run_controller<'a>(
     opt: PlantOptions,
 ) -> (Summary, ControllerDriver<'a>) {
     let mut d = ControllerDriver::new(cfg);
-    let (s, _) = plant::run(cfg, rain, &mut d, opt, (Injection::None, 0));
+    let (s, _) = closed_loop::run(cfg, rain, &mut d, opt, (Injection::None, 0));
     (s, d)
 }
 

@@ -9,7 +9,9 @@
 use holdback_core::config::PondConfig;
 use holdback_core::control::{Fault, Mode};
 use holdback_core::event::{EventBody, FaultKind, FaultSource};
-use holdback_tests::plant::{self, ControllerDriver, Injection, PlantOptions, Sample, block_storm};
+use holdback_tests::closed_loop::{
+    self, ControllerDriver, Injection, PlantOptions, Sample, block_storm,
+};
 use holdback_tests::ponds;
 
 const T0: u32 = 1200;
@@ -24,7 +26,7 @@ fn inject(cfg: &PondConfig, inj: Injection) -> (ControllerDriver<'_>, Vec<Sample
         tail_s: 4 * 3600,
         ..PlantOptions::default()
     };
-    let (_, trace) = plant::run(cfg, &storm(cfg), &mut d, opt, (inj, T0));
+    let (_, trace) = closed_loop::run(cfg, &storm(cfg), &mut d, opt, (inj, T0));
     (d, trace)
 }
 

@@ -7,7 +7,9 @@
 use holdback_core::config::PondConfig;
 use holdback_core::control::{Command, Mode, Reason};
 use holdback_core::event::EventBody;
-use holdback_tests::plant::{self, ControllerDriver, Injection, PlantOptions, block_storm, scaled};
+use holdback_tests::closed_loop::{
+    self, ControllerDriver, Injection, PlantOptions, block_storm, scaled,
+};
 use holdback_tests::ponds;
 
 fn cfg() -> PondConfig {
@@ -42,7 +44,7 @@ fn manual_override_runs_out_and_bad_commands_are_rejected() {
             },
         ),
     ];
-    plant::run(
+    closed_loop::run(
         &cfg,
         &rain,
         &mut d,
@@ -86,7 +88,7 @@ fn manual_yields_to_surcharge() {
             for_s: 4 * 3600,
         },
     )];
-    let (s, _) = plant::run(
+    let (s, _) = closed_loop::run(
         &cfg,
         &rain,
         &mut d,
@@ -109,7 +111,7 @@ fn min_detention_paces_the_drawdown() {
     let cfg = PondConfig::new(p).unwrap();
     let rain = block_storm(cfg.idf(), 10.0, 60, cfg.catchment().dt_s());
     let mut d = ControllerDriver::new(&cfg);
-    let (s, _) = plant::run(
+    let (s, _) = closed_loop::run(
         &cfg,
         &rain,
         &mut d,

@@ -18,7 +18,7 @@
 use holdback_core::config::PondConfig;
 use holdback_core::control::{Controller, Inputs};
 use holdback_core::event::{EventRecord, MAX_FRAME_LEN, encode};
-use holdback_tests::plant::{
+use holdback_tests::closed_loop::{
     self, ControllerDriver, Injection, PlantOptions, Rng, block_storm, min_cap_to_hold,
     perfect_foresight, scaled, triangle_storm,
 };
@@ -60,7 +60,7 @@ proptest! {
         let rain = scaled(&base, depth_f);
         let opt = PlantOptions { gate_speed_m_s: speed, noise_m: noise, seed, tail_s: 6 * 3600 };
         let mut d = ControllerDriver::new(&cfg);
-        let (s, _) = plant::run(&cfg, &rain, &mut d, opt, (Injection::None, 0));
+        let (s, _) = closed_loop::run(&cfg, &rain, &mut d, opt, (Injection::None, 0));
         let max = cfg.outlet().max_opening_m();
         prop_assert!(d.outputs.iter().all(|o| o.opening_cmd_m.is_finite() && (0.0..=max).contains(&o.opening_cmd_m)));
         let pond_ss = cfg.storage();

@@ -199,15 +199,21 @@ pub struct TimeAreaInflow {
     /// the newest.
     history_mm: [f32; MAX_TIME_AREA_STEPS],
     head: usize,
+    /// How many of the newest pushes were zero, counted up to the ring's length (the
+    /// ordinate count): at that length every live slot is zero. A function of the ring's
+    /// contents, so equality of two estimates is unchanged by it.
+    dry_steps: usize,
 }
 
 impl TimeAreaInflow {
     /// A running estimate with no rain fallen yet.
     pub fn new(response: TimeAreaResponse) -> Self {
+        let dry_steps = response.ordinates_m2.len();
         Self {
             response,
             history_mm: [0.0; MAX_TIME_AREA_STEPS],
             head: 0,
+            dry_steps,
         }
     }
 
@@ -220,6 +226,12 @@ impl TimeAreaInflow {
     pub fn reset(&mut self) {
         self.history_mm = [0.0; MAX_TIME_AREA_STEPS];
         self.head = 0;
+        self.dry_steps = self.response.ordinates_m2.len();
+    }
+
+    /// Whether every live slot of the ring holds zero rain.
+    fn all_dry(&self) -> bool {
+        self.dry_steps >= self.response.ordinates_m2.len()
     }
 
     /// The ring's live part (as many slots as ordinates).
@@ -261,9 +273,15 @@ impl TimeAreaInflow {
         let n = self.response.ordinates_m2.len();
         let next = self.head.saturating_add(1);
         self.head = if next < n { next } else { 0 };
+        let rain_mm = live_non_negative(rain_mm);
         if let Some(slot) = self.history_mm.get_mut(self.head) {
-            *slot = live_non_negative(rain_mm);
+            *slot = rain_mm;
         }
+        self.dry_steps = if rain_mm == 0.0 {
+            self.dry_steps.saturating_add(1).min(n)
+        } else {
+            0
+        };
         self.projected_inflow_m3s(0, 0.0)
     }
 
@@ -274,7 +292,13 @@ impl TimeAreaInflow {
         let future = live_non_negative(rain_mm_per_step);
         let ords = &self.response.ordinates_m2;
         let from_future = ords.iter().take(ahead_steps).sum::<f32>() * future;
-        let from_past = self.dot_newest_first(ords.get(ahead_steps..).unwrap_or(&[]));
+        // A dry ring gives exactly +0 (every term is ±0 and the sum starts at +0), so the dot
+        // product is skipped: same bits, no work in dry weather.
+        let from_past = if self.all_dry() {
+            0.0
+        } else {
+            self.dot_newest_first(ords.get(ahead_steps..).unwrap_or(&[]))
+        };
         (from_future + from_past) * (M3_PER_MM_M2 / self.response.dt_s as f32)
     }
 
@@ -398,5 +422,36 @@ mod tests {
         let mut s = TimeAreaInflow::new(r);
         assert_eq!(s.push_step(f32::NAN), 0.0);
         assert_eq!(s.push_step(-4.0), 0.0);
+    }
+
+    /// Storms separated by dry spells longer than the response (where the dry shortcut
+    /// applies) give the same bits from the running estimate as from the batch convolution,
+    /// and exactly 0 once the response has drained (Σ of zero terms; the shortcut's claim).
+    #[test]
+    fn dry_spells_give_the_batch_bits_and_exact_zero() {
+        let r = TimeAreaResponse::from_catchment(&one_sub(600, 120), 60).unwrap();
+        let n = r.ordinates_m2().len();
+        let mut rain = [0.0_f32; 200];
+        for (k, p) in rain.iter_mut().enumerate() {
+            // Two wet bursts, a lone -0 and a lone NaN in the dry spells.
+            *p = match k {
+                3..=9 => 0.1 * k as f32,
+                40 => -0.0,
+                60 => f32::NAN,
+                90..=94 => 2.0,
+                _ => 0.0,
+            };
+        }
+        let mut batch = [0.0_f32; 200];
+        r.convolve(&rain, &mut batch);
+        let mut s = TimeAreaInflow::new(r);
+        for (k, (p, b)) in rain.iter().zip(&batch).enumerate() {
+            let q = s.push_step(*p);
+            assert_eq!(q.to_bits(), b.to_bits(), "step {k}");
+            if (10 + n..90).contains(&k) || k >= 95 + n {
+                assert_eq!(q.to_bits(), 0.0_f32.to_bits(), "step {k}");
+                assert_eq!(s.projected_inflow_m3s(3, 0.0).to_bits(), 0);
+            }
+        }
     }
 }

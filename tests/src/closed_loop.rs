@@ -1,24 +1,25 @@
-//! A closed-loop plant for controller tests: the real pond and outlet from core as water.
+//! Closed-loop runs for controller tests: the core's own plant
+//! ([`holdback_core::plant::Plant`], the one the desktop tool and the emulated board step)
+//! with a gate policy under test, sensor faults injected on the way in.
 //!
-//! - Rain (mm per runoff step) becomes inflow through the pond's own time–area response
-//!   ([`holdback_core::runoff::TimeAreaResponse::convolve`]); the inflow is held at its step
-//!   mean within each runoff step.
-//! - The pond is routed with [`holdback_core::routing::step`] through `outlet.at(opening)`,
-//!   with the *actual* gate opening, one control step at a time.
-//! - The gate moves toward the command at `gate_speed_m_s` (∞ = ideal actuator).
-//! - The stage sensor reads the routed stage plus seeded uniform noise; the rain gauge tips
-//!   once per bucket of cumulative rain.
+//! - Rain (mm per runoff step) falls uniformly within each runoff step; each control step's
+//!   share goes into the plant (time–area inflow, delivered one response step late, level-pool
+//!   routing through `outlet.at(actual opening)`, gate speed limit) and into the core's
+//!   [`BucketGauge`], whose tips for the step just ended the driver sees at the next step.
+//! - The stage sensor reads the plant's stage plus seeded uniform noise.
 //!
 //! Also here: the perfect-foresight permit schedule of DESIGN.md ("total release =
 //! min(permit, full-open capacity) from the first drop") with
-//! [`holdback_core::forecast::step_capped`], and the smallest cap that holds a stage limit
-//! over a whole storm (perfect foresight above the permit).
+//! [`holdback_core::forecast::step_capped`] on the same (lagged) inflow the plant delivers,
+//! and the smallest cap that holds a stage limit over a whole storm (perfect foresight above
+//! the permit).
 
 use holdback_core::config::PondConfig;
 use holdback_core::control::{Command, Controller, Inputs, Mode, NORMAL_BAND_M, Outputs};
 use holdback_core::forecast::step_capped;
+use holdback_core::plant::{BucketGauge, Plant};
 use holdback_core::rain::Idf;
-use holdback_core::routing::{Inflow, step};
+use holdback_core::routing::Inflow;
 
 /// A small deterministic generator (xorshift64*), so tests need no RNG crate.
 #[derive(Debug, Clone)]
@@ -214,10 +215,11 @@ impl Driver for ThresholdDriver {
     }
 }
 
-/// Mean inflow per runoff step of `rain_mm`, with `extra` recession steps.
+/// Mean inflow per runoff step of `rain_mm`, with `extra` recession steps, as the plant
+/// delivers it: the step-mean hydrograph one response step late (a leading dry step).
 pub fn inflow_of(cfg: &PondConfig, rain_mm: &[f32], extra: usize) -> Vec<f32> {
-    let mut q = vec![0.0; rain_mm.len() + extra];
-    cfg.catchment().convolve(rain_mm, &mut q);
+    let mut q = vec![0.0; rain_mm.len() + extra + 1];
+    cfg.catchment().convolve(rain_mm, &mut q[1..]);
     q
 }
 
@@ -265,41 +267,30 @@ pub fn run(
     let step_s = cfg.control().step_s;
     let rain_end_s = rain_mm.len() as u32 * dt_r;
     let end_s = rain_end_s + opt.tail_s;
-    let inflow = inflow_of(cfg, rain_mm, (opt.tail_s / dt_r) as usize + 1);
-    let pond = cfg.storage();
-    let outlet = cfg.outlet();
     let normal = cfg.levels().normal_m;
     let permit = cfg.permit().release_m3s;
     let limit = cfg.stage_limit_m();
-    let bucket = cfg.sensors().gauge.bucket_mm;
-    let max_open = outlet.max_opening_m();
+    let max_open = cfg.outlet().max_opening_m();
+    let mut plant = Plant::new(cfg, normal, 0.0, opt.gate_speed_m_s, 0).expect("plant settings");
+    let mut gauge = BucketGauge::new(cfg.sensors().gauge.bucket_mm).expect("gauge bucket");
     let mut rng = Rng::new(opt.seed);
-    let mut s = pond.storage_m3(normal);
-    let mut opening = 0.0_f32;
-    let mut rain_acc = 0.0_f32;
     let mut sum = Summary {
-        peak_stage_m: normal,
-        peak_storage_m3: s,
+        peak_stage_m: plant.stage_m(),
+        peak_storage_m3: plant.storage_m3(),
         rain_end_s,
         ..Summary::default()
     };
     let mut trace = Vec::new();
     let mut t = 0u32;
-    let mut stage = normal;
+    let mut last_step_rain_mm = 0.0_f32;
     let mut frozen: Option<f32> = None;
     while t < end_s {
-        // Inputs at time t (state at the end of the previous step).
-        let k = (t / dt_r) as usize;
+        // Inputs at time t: the plant's state and the gauge's tips for the step just ended.
+        let stage = plant.stage_m();
+        let opening = plant.opening_m();
         let (fault, from) = inject;
         let on = t >= from;
-        let mut tips = 0u16;
-        if let Some(r) = rain_mm.get(k) {
-            rain_acc += r * step_s as f32 / dt_r as f32;
-            while rain_acc >= bucket {
-                rain_acc -= bucket;
-                tips += 1;
-            }
-        }
+        let tips = gauge.tips(last_step_rain_mm);
         let noise = if opt.noise_m > 0.0 {
             (2.0 * rng.next_f32() - 1.0) * opt.noise_m
         } else {
@@ -337,22 +328,20 @@ pub fn run(
                 Injection::DriverFault => inputs.gate_fault = true,
             }
         }
-        let cmd = driver.command(t, &inputs).clamp(0.0, max_open);
-        // Actuator.
-        if !(on && fault == Injection::GateStuck) {
-            let max_move = opt.gate_speed_m_s * step_s as f32;
-            let d = cmd - opening;
-            opening = if d.abs() <= max_move {
-                cmd
-            } else {
-                opening + max_move * d.signum()
-            };
+        let cmd = driver.command(t, &inputs);
+        // Actuator: a stuck gate is held where it is.
+        if on && fault == Injection::GateStuck {
+            plant.command(cfg, opening);
+        } else {
+            plant.command(cfg, cmd);
         }
-        // Water.
-        let q_in = inflow.get(k).copied().unwrap_or(0.0);
-        let r = step(pond, &outlet.at(opening), s, Inflow::steady(q_in), step_s);
-        s = r.storage_m3;
-        stage = r.stage_m;
+        // Water: this control step's share of the runoff step's rain.
+        let k = (t / dt_r) as usize;
+        let rain = rain_mm
+            .get(k)
+            .map_or(0.0, |r| r * step_s as f32 / dt_r as f32);
+        last_step_rain_mm = rain;
+        let r = plant.step(cfg, rain, step_s);
         t += step_s;
         let q = r.outflow_m3s;
         if r.stage_m > sum.peak_stage_m {
@@ -373,7 +362,7 @@ pub fn run(
             t_s: t,
             stage_m: r.stage_m,
             release_m3s: q,
-            opening_m: opening,
+            opening_m: r.opening_m,
         });
         if t > rain_end_s && sum.drawdown_s.is_none() && r.stage_m <= normal + NORMAL_BAND_M {
             sum.drawdown_s = Some(t - rain_end_s);
@@ -386,8 +375,8 @@ pub fn run(
 }
 
 /// Perfect-foresight schedule at release cap `cap_m3s` over the whole storm (DESIGN.md: total
-/// release = min(cap, full-open capacity) from the first drop), routed at the control step.
-/// Returns (peak stage, peak storage).
+/// release = min(cap, full-open capacity) from the first drop), routed at the control step on
+/// the inflow the plant delivers ([`inflow_of`]). Returns (peak stage, peak storage).
 pub fn perfect_foresight(cfg: &PondConfig, rain_mm: &[f32], cap_m3s: f32) -> (f32, f32) {
     let dt_r = cfg.catchment().dt_s();
     let step_s = cfg.control().step_s;
