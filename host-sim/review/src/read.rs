@@ -3,7 +3,8 @@
 //! - a raw flash dump of the log range, read by the firmware's own
 //!   [`DumpReader`] (every item's CRC and every frame's CRC checked);
 //! - an exported log file ([`crate::logfile`]): header + core event frames;
-//! - telemetry JSON lines ([`crate::telemetry`]), so a log can be rebuilt from telemetry.
+//! - the firmware's telemetry messages, one JSON object a line ([`crate::telemetry`]), so a
+//!   log can be rebuilt from telemetry (to the schema's quantisation).
 //!
 //! Invariants: every byte that is not part of a valid record is covered by a [`Problem`] with
 //! its offset (byte offset in the file; for JSON lines the offset of the line) and reason,
@@ -25,7 +26,7 @@ pub enum SourceKind {
     Dump,
     /// Exported log file.
     LogFile,
-    /// Telemetry JSON lines.
+    /// Telemetry messages (JSON lines).
     Telemetry,
 }
 
@@ -64,7 +65,7 @@ pub struct Gap {
 pub struct DecodedLog {
     /// What kind of source.
     pub kind: SourceKind,
-    /// The device id, when the source says (log file header, telemetry `device`).
+    /// The device id, when the source says (log file header; telemetry `device_id` in decimal).
     pub device: Option<String>,
     /// Valid records, in the order the source holds them (oldest first).
     pub records: Vec<Located>,
