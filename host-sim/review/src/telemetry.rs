@@ -73,7 +73,10 @@ pub fn code_name<T: Word>(v: T) -> String {
 
 /// The code whose telemetry word is `w` (`"unknown"` names no code).
 pub fn from_word<T: Word>(w: &str) -> Option<T> {
-    T::ALL.iter().copied().find(|v| v.word() == w && w != "unknown")
+    T::ALL
+        .iter()
+        .copied()
+        .find(|v| v.word() == w && w != "unknown")
 }
 
 /// The `kind` word of a body (the firmware's `event_word`).

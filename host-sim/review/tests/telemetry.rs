@@ -243,10 +243,7 @@ fn documented_examples_decode_and_encode_back_to_the_same_line() {
         std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../../firmware/TELEMETRY.md"),
     )
     .unwrap();
-    let lines: Vec<&str> = doc
-        .lines()
-        .filter(|l| l.starts_with("{\"v\":1,"))
-        .collect();
+    let lines: Vec<&str> = doc.lines().filter(|l| l.starts_with("{\"v\":1,")).collect();
     assert!(lines.len() >= 9, "{} example lines", lines.len());
     for line in lines {
         let again = match decode_line(line).unwrap_or_else(|e| panic!("{e}: {line}")) {
