@@ -345,6 +345,7 @@ pub fn read(bytes: &[u8]) -> TelemetryRead {
                         device: Some(device_name(device_id)),
                         records: Vec::new(),
                         problems: Vec::new(),
+                        source: None,
                     }
                 });
                 log.records.push(Located {
@@ -400,6 +401,7 @@ pub fn read(bytes: &[u8]) -> TelemetryRead {
                 device: None,
                 records: Vec::new(),
                 problems: orphan,
+                source: None,
             }),
         }
     }
