@@ -128,7 +128,7 @@ fn pick<T: Copy>(all: &[T], i: u8) -> T {
     all[usize::from(i) % all.len()]
 }
 
-fn body(which: u8, a: f32, b: f32, c: f32, d: f32, i: u8, j: u8, n: u32) -> EventBody {
+fn body(which: u8, [a, b, c, d]: [f32; 4], i: u8, j: u8, n: u32) -> EventBody {
     match which % 10 {
         0 => EventBody::ModeChange {
             from: pick(ModeCode::ALL, i),
@@ -191,7 +191,7 @@ proptest! {
         a in quantity(), b in quantity(), c in quantity(), d in quantity(),
         i: u8, j: u8, n: u32,
     ) {
-        let r = EventRecord { seq, time_s, body: body(which, a, b, c, d, i, j, n) };
+        let r = EventRecord { seq, time_s, body: body(which, [a, b, c, d], i, j, n) };
         assert_event_round_trip(device_id, &r)?;
     }
 
