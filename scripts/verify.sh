@@ -42,7 +42,7 @@ cargo fmt --manifest-path tools/qemu-icount/Cargo.toml --check
 cargo clippy --manifest-path tools/qemu-icount/Cargo.toml --target-dir target/tools --locked -- -D warnings
 bash scripts/qemu-icount.sh bench "$board_elf" 100
 
-step "closed loop under QEMU: main loop on the plant-backed virtual board, device trace == host trace"
+step "closed loop under QEMU: main loop on the plant-backed virtual board, device trace == host trace, device log == host log"
 HOLDBACK_BOARD_ELF="$board_elf" cargo test -p holdback-tests --test qemu_closed_loop --locked -- --ignored
 closed_dir="$PWD/target/tmp/qemu_closed_loop" # pond.bin and storm.bin, written by that test
 
@@ -60,7 +60,7 @@ stack_bytes=$(
     {
         bash scripts/qemu-run.sh "$board_elf" run "$probe_dir/in.bin" "$probe_dir/out.bin"
         for k in none sqrt pow1_5 pow2_5 powf1_5; do bash scripts/qemu-run.sh "$board_elf" bench "$k" 1; done
-        bash scripts/qemu-run.sh "$board_elf" closed-loop "$closed_dir/pond.bin" "$closed_dir/storm.bin" "$probe_dir/trace.bin"
+        bash scripts/qemu-run.sh "$board_elf" closed-loop "$closed_dir/pond.bin" "$closed_dir/storm.bin" "$probe_dir/trace.bin" "$probe_dir/log.bin"
     } | awk '/^stack: /{if ($2 > m) m = $2} END {print m + 0}'
 )
 rm -rf "$probe_dir"
@@ -80,7 +80,7 @@ if ! cargo fuzz --version >/dev/null 2>&1; then
 fi
 fuzz_s=${HOLDBACK_FUZZ_SECONDS:-15}
 for spec in core:decode_event core:unpack_config firmware:verify_command firmware:read_dump \
-    host-sim:pond_file host-sim:rain_file; do
+    host-sim:pond_file host-sim:rain_file host-sim:telemetry_line; do
     dir=${spec%%:*}
     target=${spec#*:}
     echo "-- $dir/fuzz $target (${fuzz_s} s)"

@@ -194,8 +194,10 @@ pub fn scaled(x: f32, scale: f32) -> Option<i32> {
     Some(r as i32)
 }
 
-/// m → mm, m³ → L, m³/s → mL/s: all × 1000.
-const MILLI: f32 = 1000.0;
+/// The one scale of every quantity sent: m → mm, m³ → L, m³/s → mL/s, fraction → ‰, alarm
+/// unit → thousandths, mm of rain → µm; all × 1000. A receiver divides by it
+/// (`holdback-review`'s telemetry reader does).
+pub const MILLI: f32 = 1000.0;
 
 struct StatusMessage<'a> {
     device_id: u32,

@@ -9,6 +9,9 @@
 //!   on both machines, and the control step is specified as a pure function of its inputs
 //!   (docs/DESIGN.md), so equal inputs must give equal bits. The first differing step is
 //!   printed.
+//! - `device_log_decodes_to_the_host_log` (QEMU, likewise): the event-log flash the board
+//!   exports at the end of the same run, decoded by the desktop review, is the host's log
+//!   record for record.
 //! - host-only checks of the loop against the pond file's own permit and crest, and of the
 //!   unreadable-config path (the documented fallback opening and the config alarm).
 //!
@@ -19,7 +22,9 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 use holdback_core::config::PondConfig;
-use holdback_core::event::{EventBody, FaultKind, FaultSource, ModeCode};
+use holdback_core::event::{
+    EventBody, EventRecord, FaultKind, FaultSource, MAX_FRAME_LEN, ModeCode,
+};
 use holdback_core::packed::{self, MAX_PACKED_LEN};
 use holdback_core::rain::design::{DesignStorm, MAX_STORM_STEPS, Pattern};
 use holdback_firmware::app::{CONFIG_INVALID, load_config};
@@ -68,6 +73,10 @@ struct HostRun {
     peak_stage_m: f32,
     peak_release_m3s: f32,
     events: Vec<EventBody>,
+    /// Every record the firmware's log reads back at the end of the run.
+    records: Vec<EventRecord>,
+    /// The log flash at the end of the run.
+    image: Vec<u8>,
 }
 
 /// The host replay: the same `App` + `VirtualBoard` + `run_closed_loop` as the board image.
@@ -87,16 +96,20 @@ fn host_run(pond: &PondConfig, blob: &[u8], rain: &[f32], steps: u32) -> HostRun
         Ok::<(), ()>(())
     })
     .unwrap();
-    let mut events = Vec::new();
+    let mut records = Vec::new();
     if let Some(log) = app.log_mut() {
-        log.for_each(|r| events.extend(r.ok().map(|r| r.body)))
-            .unwrap();
+        log.for_each(|r| records.push(r.unwrap())).unwrap();
     }
+    let (peak_stage_m, peak_release_m3s) =
+        (app.board().peak_stage_m(), app.board().peak_release_m3s());
+    drop(app);
     HostRun {
         trace,
-        peak_stage_m: app.board().peak_stage_m(),
-        peak_release_m3s: app.board().peak_release_m3s(),
-        events,
+        peak_stage_m,
+        peak_release_m3s,
+        events: records.iter().map(|r| r.body).collect(),
+        records,
+        image: flash.image().to_vec(),
     }
 }
 
@@ -226,34 +239,34 @@ fn elf() -> PathBuf {
     ))
 }
 
-/// The board image's closed-loop trace equals the host's, bit for bit (see the module doc).
-#[test]
-#[ignore = "boots the board under QEMU; scripts/verify.sh runs it with HOLDBACK_BOARD_ELF set"]
-fn device_trace_equals_host_trace() {
-    let (pond, blob) = demo_pond();
-    let rain = storm(&pond);
-    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join("qemu_closed_loop");
+/// Runs the board image's `closed-loop` command on the demo pond and storm in the folder
+/// `name` under the test's tmp dir; returns the trace file's bytes and the event-log flash
+/// image the board wrote at the end of the run.
+fn board_run(name: &str, blob: &[u8], rain: &[f32]) -> (Vec<u8>, Vec<u8>) {
+    let dir = Path::new(env!("CARGO_TARGET_TMPDIR")).join(name);
     std::fs::create_dir_all(&dir).unwrap();
     assert!(
         !dir.to_string_lossy().contains([' ', ',']),
         "{}",
         dir.display()
     );
-    let (blob_p, storm_p, trace_p) = (
+    let (blob_p, storm_p, trace_p, log_p) = (
         dir.join("pond.bin"),
         dir.join("storm.bin"),
         dir.join("trace.bin"),
+        dir.join("log.bin"),
     );
-    std::fs::write(&blob_p, &blob).unwrap();
-    std::fs::write(&storm_p, storm_file(&rain)).unwrap();
+    std::fs::write(&blob_p, blob).unwrap();
+    std::fs::write(&storm_p, storm_file(rain)).unwrap();
     let _ = std::fs::remove_file(&trace_p);
+    let _ = std::fs::remove_file(&log_p);
 
     let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("../scripts/qemu-run.sh");
     let out = Command::new("bash")
         .arg(script)
         .arg(elf())
         .arg("closed-loop")
-        .args([&blob_p, &storm_p, &trace_p])
+        .args([&blob_p, &storm_p, &trace_p, &log_p])
         .env("QEMU_TIMEOUT", "600")
         .output()
         .unwrap();
@@ -261,8 +274,20 @@ fn device_trace_equals_host_trace() {
         String::from_utf8_lossy(&out.stdout).into_owned() + &String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(0), "board failed:\n{console}");
     eprintln!("{console}");
+    (
+        std::fs::read(&trace_p).unwrap(),
+        std::fs::read(&log_p).unwrap(),
+    )
+}
 
-    let bytes = std::fs::read(&trace_p).unwrap();
+/// The board image's closed-loop trace equals the host's, bit for bit (see the module doc).
+#[test]
+#[ignore = "boots the board under QEMU; scripts/verify.sh runs it with HOLDBACK_BOARD_ELF set"]
+fn device_trace_equals_host_trace() {
+    let (pond, blob) = demo_pond();
+    let rain = storm(&pond);
+    // scripts/verify.sh reuses pond.bin and storm.bin of this folder for its stack probe.
+    let (bytes, _) = board_run("qemu_closed_loop", &blob, &rain);
     assert_eq!(bytes.len() % TraceRecord::BYTES, 0, "whole records");
     let device: Vec<TraceRecord> = bytes
         .chunks_exact(TraceRecord::BYTES)
@@ -289,6 +314,56 @@ fn device_trace_equals_host_trace() {
     }
     assert_eq!(device.len(), host.len(), "trace lengths");
     assert_eq!(device.len(), rain.len());
+}
+
+/// The event log the board image wrote (its flash exported at the end of the run), decoded
+/// by the desktop review (`holdback_review::read::read_dump`, the firmware's own
+/// `DumpReader` under it), equals record for record — sequence number, time and body, bit
+/// for bit — what the host's device model (the same `App` on the `VirtualBoard`, same pond
+/// and storm) logged, as the firmware's log itself reads it back. Source of the expectation:
+/// the same one as for the trace (bit-identical control steps on both machines, see the
+/// module doc) and a deterministic log writer, so the two flash images must be the same
+/// bytes too; the review must find every record and no damage in either.
+#[test]
+#[ignore = "boots the board under QEMU; scripts/verify.sh runs it with HOLDBACK_BOARD_ELF set"]
+fn device_log_decodes_to_the_host_log() {
+    use holdback_firmware::eventlog::dump::Geometry;
+    use holdback_review::read::read_dump;
+
+    let (pond, blob) = demo_pond();
+    let rain = storm(&pond);
+    let (_, image) = board_run("qemu_closed_loop_log", &blob, &rain);
+    let host = host_run(&pond, &blob, &rain, rain.len() as u32);
+    assert_eq!(image.len(), 2048, "the whole log range");
+    // The in-RAM log flash: reads and writes of 4 bytes, 512-byte erase pages.
+    let g = Geometry::new(4, 4, 512).unwrap();
+    let device = read_dump(&image, g, 512);
+    assert!(device.problems.is_empty(), "{:?}", device.problems);
+    let from_host_image = read_dump(&host.image, g, 512);
+    assert!(from_host_image.problems.is_empty());
+    assert_eq!(from_host_image.records(), host.records);
+    assert!(
+        host.records.len() > 10,
+        "{} records: the run must log something",
+        host.records.len()
+    );
+    let same_bits = |a: &EventRecord, b: &EventRecord| {
+        let (mut x, mut y) = ([0u8; MAX_FRAME_LEN], [0u8; MAX_FRAME_LEN]);
+        let n = holdback_core::event::encode(a, &mut x).unwrap();
+        let m = holdback_core::event::encode(b, &mut y).unwrap();
+        x[..n] == y[..m]
+    };
+    let got = device.records();
+    if let Some(k) =
+        (0..got.len().min(host.records.len())).find(|&k| !same_bits(&got[k], &host.records[k]))
+    {
+        panic!(
+            "logs differ first at record {k}:\n  device: {:?}\n  host:   {:?}",
+            got[k], host.records[k]
+        );
+    }
+    assert_eq!(got.len(), host.records.len(), "record counts");
+    assert_eq!(image, host.image, "flash images");
 }
 
 /// A remote manual command signed with the device key drives the gate through the real main

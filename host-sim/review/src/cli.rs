@@ -56,11 +56,16 @@ fn parse_geometry(s: &str) -> Result<(usize, usize, usize), String> {
 /// The fleet subcommands.
 #[derive(Debug, Subcommand)]
 pub enum FleetCmd {
-    /// Decode a dump, exported log or telemetry file: records as JSON lines on stdout,
-    /// problems (offset, length, why) on stderr.
+    /// Decode a dump, exported log or telemetry file: records as the firmware's telemetry
+    /// event messages (firmware/TELEMETRY.md), one a line, on stdout; problems (offset,
+    /// length, why) on stderr.
     Decode {
         /// The file.
         file: PathBuf,
+        /// `device_id` written in each message when the log does not name a numeric device
+        /// (a raw dump, or a log file of a named device).
+        #[arg(long, default_value_t = 0)]
+        device_id: u32,
         /// Flash geometry.
         #[command(flatten)]
         geometry: GeometryArg,
@@ -286,11 +291,19 @@ pub fn import_tree(
 pub fn run(args: FleetArgs) -> Result<ExitCode, ReviewError> {
     let mut problems = false;
     match args.cmd {
-        FleetCmd::Decode { file, geometry } => {
+        FleetCmd::Decode {
+            file,
+            device_id,
+            geometry,
+        } => {
             for log in read::read_file(&file, &opts(&geometry))? {
-                let dev = log.device.clone().unwrap_or_else(|| "?".into());
+                let dev = log
+                    .device
+                    .as_deref()
+                    .and_then(|d| d.parse::<u32>().ok())
+                    .unwrap_or(device_id);
                 for l in &log.records {
-                    println!("{}", telemetry::to_line(&dev, &l.record));
+                    println!("{}", telemetry::event_line(dev, &l.record));
                 }
                 problems |= report_problems(&file, &log);
             }

@@ -5,7 +5,7 @@
 //! HTML report.
 //!
 //! - [`read`]: decode a raw flash dump (the firmware's own [`DumpReader`]), an exported log
-//!   file ([`logfile`]) or telemetry JSON lines ([`telemetry`]) into one [`read::DecodedLog`]:
+//!   file ([`logfile`]) or the firmware's telemetry messages ([`telemetry`]) into one [`read::DecodedLog`]:
 //!   every record that passed its CRC, and every region that did not, with its offset. One
 //!   bad region never stops the decoding of what follows.
 //! - [`pond`]: what the review needs to know about a pond (permit, levels, IDF, targets,

@@ -3,7 +3,8 @@
 //! - a raw flash dump of the log range, read by the firmware's own
 //!   [`DumpReader`] (every item's CRC and every frame's CRC checked);
 //! - an exported log file ([`crate::logfile`]): header + core event frames;
-//! - telemetry JSON lines ([`crate::telemetry`]), so a log can be rebuilt from telemetry.
+//! - the firmware's telemetry messages, one JSON object a line ([`crate::telemetry`]), so a
+//!   log can be rebuilt from telemetry (to the schema's quantisation).
 //!
 //! Invariants: every byte that is not part of a valid record is covered by a [`Problem`] with
 //! its offset (byte offset in the file; for JSON lines the offset of the line) and reason,
@@ -11,8 +12,11 @@
 //! reported as [`Gap`]s (records lost on the device: power cut mid-write, overwritten ring).
 
 use std::path::Path;
+use std::sync::Arc;
 
-use holdback_core::event::{self, DecodeError, EventRecord, FORMAT_VERSION, MAX_PAYLOAD_LEN};
+use holdback_core::event::{
+    self, DecodeError, EventRecord, FORMAT_VERSION, FRAME_OVERHEAD, MAX_PAYLOAD_LEN,
+};
 use holdback_firmware::eventlog::dump::{Corruption, DumpEntry, DumpReader, Geometry};
 
 use crate::error::ReviewError;
@@ -25,7 +29,7 @@ pub enum SourceKind {
     Dump,
     /// Exported log file.
     LogFile,
-    /// Telemetry JSON lines.
+    /// Telemetry messages (JSON lines).
     Telemetry,
 }
 
@@ -64,18 +68,31 @@ pub struct Gap {
 pub struct DecodedLog {
     /// What kind of source.
     pub kind: SourceKind,
-    /// The device id, when the source says (log file header, telemetry `device`).
+    /// The device id, when the source says (log file header; telemetry `device_id` in decimal).
     pub device: Option<String>,
     /// Valid records, in the order the source holds them (oldest first).
     pub records: Vec<Located>,
     /// Regions that were not valid records.
     pub problems: Vec<Problem>,
+    /// For an exported log file, the file's bytes: each record's `offset` is where its core
+    /// event frame starts in them (see [`DecodedLog::frame`]), so the store keeps the frame
+    /// exactly as read instead of encoding the record again. `None` for other sources.
+    pub source: Option<Arc<[u8]>>,
 }
 
 impl DecodedLog {
     /// The records alone.
     pub fn records(&self) -> Vec<EventRecord> {
         self.records.iter().map(|l| l.record).collect()
+    }
+
+    /// The core event frame of record `i` as the source holds it (an exported log file;
+    /// `None` for other sources, whose records are encoded again when stored).
+    pub fn frame(&self, i: usize) -> Option<&[u8]> {
+        let src = self.source.as_deref()?;
+        let at = self.records.get(i)?.offset;
+        let len = usize::from(*src.get(at.checked_add(1)?)?) + FRAME_OVERHEAD;
+        src.get(at..at.checked_add(len)?)
     }
 
     /// Sequence gaps between consecutive valid records (wrapping arithmetic; a step back or
@@ -163,6 +180,7 @@ pub fn read_dump(image: &[u8], g: Geometry, erase_size: usize) -> DecodedLog {
         device: None,
         records: Vec::new(),
         problems: Vec::new(),
+        source: None,
     };
     if whole > 0 {
         match DumpReader::new(&image[..whole], g) {
@@ -209,6 +227,7 @@ pub fn read_logfile(bytes: &[u8], path: &Path) -> Result<DecodedLog, ReviewError
         device: Some(h.device),
         records,
         problems,
+        source: Some(Arc::from(bytes)),
     })
 }
 

@@ -191,9 +191,21 @@ impl Flag {
         Flag::GaugeClogged,
         Flag::LargerThanDesign,
     ];
-    /// Its snake_case code.
+    /// Its snake_case code (`Flag::PermitExceeded` → `permit_exceeded`).
     pub fn code(self) -> String {
-        code_name(self)
+        let name = format!("{self:?}");
+        let mut out = String::with_capacity(name.len() + 4);
+        for (i, c) in name.chars().enumerate() {
+            if c.is_ascii_uppercase() {
+                if i > 0 {
+                    out.push('_');
+                }
+                out.push(c.to_ascii_lowercase());
+            } else {
+                out.push(c);
+            }
+        }
+        out
     }
     /// A sentence for the report.
     pub fn meaning(self) -> &'static str {

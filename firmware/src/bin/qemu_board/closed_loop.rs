@@ -1,4 +1,4 @@
-//! The `closed-loop BLOB STORM TRACE` command: the firmware's main loop
+//! The `closed-loop BLOB STORM TRACE [LOG]` command: the firmware's main loop
 //! ([`holdback_firmware::App`]) on the [`VirtualBoard`], whose peripherals are backed by the
 //! core's plant model.
 //!
@@ -9,6 +9,9 @@
 //!   little-endian (no float parsing on the device); read in small chunks as the run goes.
 //! - `TRACE`: written with N [`TraceRecord`]s (`time_s u32`, `stage_m` bits, `opening_cmd_m`
 //!   bits, `mode u8`; 13 bytes each, little-endian).
+//! - `LOG` (optional): written at the end of the run with the whole event-log flash, the
+//!   [`LOG_FLASH_BYTES`] bytes of its range as they are (a raw dump: read, write and erase
+//!   sizes 4, 4 and 512 bytes), so the desktop review can decode what the device logged.
 //!
 //! The event log lives on a [`RamFlash`] of [`LOG_FLASH_BYTES`] in RAM.
 
@@ -84,7 +87,12 @@ fn load(blob_path: &str) -> Result<PondConfig, Exit> {
 }
 
 /// Runs the command (see the module doc).
-pub fn run(blob_path: &str, storm_path: &str, trace_path: &str) -> Result<(), Exit> {
+pub fn run(
+    blob_path: &str,
+    storm_path: &str,
+    trace_path: &str,
+    log_path: Option<&str>,
+) -> Result<(), Exit> {
     let pond = load(blob_path)?;
 
     let mut storm = open(storm_path)?;
@@ -129,5 +137,13 @@ pub fn run(blob_path: &str, storm_path: &str, trace_path: &str) -> Result<(), Ex
     })?;
     out.write_all(buf.get(..used).unwrap_or(&[]))
         .map_err(|_| Exit::Output)?;
-    out.flush().map_err(|_| Exit::Output)
+    out.flush().map_err(|_| Exit::Output)?;
+    drop(app);
+    if let Some(path) = log_path {
+        let p = c_path(path, &mut pbuf).ok_or(Exit::Usage)?;
+        let mut log = File::create(p).map_err(|_| Exit::Output)?;
+        log.write_all(flash.image()).map_err(|_| Exit::Output)?;
+        log.flush().map_err(|_| Exit::Output)?;
+    }
+    Ok(())
 }

@@ -7,9 +7,10 @@
 //! Commands (the first argument is the program name, as `scripts/qemu-run.sh` passes it):
 //! - `run IN OUT`: streams the host file `IN` through the [`step::Step`] in use and writes
 //!   its records to the host file `OUT` (see [`step`] for the format).
-//! - `closed-loop BLOB STORM TRACE`: the firmware's main loop on the virtual board backed by
-//!   the core's plant model, configured by the packed pond `BLOB`, driven by the rain of
-//!   `STORM`, writing the decision trace to `TRACE` (see [`closed_loop`]).
+//! - `closed-loop BLOB STORM TRACE [LOG]`: the firmware's main loop on the virtual board
+//!   backed by the core's plant model, configured by the packed pond `BLOB`, driven by the
+//!   rain of `STORM`, writing the decision trace to `TRACE` and, when `LOG` is given, the
+//!   event-log flash image at the end of the run to `LOG` (see [`closed_loop`]).
 //! - `bench KERNEL N`: evaluates `KERNEL` (`none`, `sqrt`, `pow1_5`, `pow2_5`, `powf1_5`) on
 //!   [`BENCH_STAGES`] stages, `N` times over, and writes nothing. Run under the
 //!   `qemu-icount` plugin, the instruction count of `N` passes minus that of 0 passes, over
@@ -80,20 +81,27 @@ fn main() -> ! {
 fn dispatch() -> Result<(), Exit> {
     let args = semihosting::experimental::env::args::<256>().map_err(|_| Exit::Usage)?;
     let mut it = (&args).skip(1).map(|a| a.unwrap_or(""));
-    match (it.next(), it.next(), it.next(), it.next()) {
-        (Some("run"), Some(input), Some(output), None) => {
+    match (
+        it.next(),
+        it.next(),
+        it.next(),
+        it.next(),
+        it.next(),
+        it.next(),
+    ) {
+        (Some("run"), Some(input), Some(output), None, ..) => {
             run_files(&mut step::MathProbe, input, output)
         }
-        (Some("closed-loop"), Some(blob), Some(storm), Some(trace)) => {
-            closed_loop::run(blob, storm, trace)
+        (Some("closed-loop"), Some(blob), Some(storm), Some(trace), log, None) => {
+            closed_loop::run(blob, storm, trace, log)
         }
-        (Some("bench"), Some(kernel), Some(n), None) => {
+        (Some("bench"), Some(kernel), Some(n), None, ..) => {
             let n: u32 = n.parse().map_err(|_| Exit::Usage)?;
             bench(kernel, n)
         }
         _ => {
             semihosting::eprintln!(
-                "usage: qemu_board run IN OUT | closed-loop BLOB STORM TRACE | bench KERNEL N"
+                "usage: qemu_board run IN OUT | closed-loop BLOB STORM TRACE [LOG] | bench KERNEL N"
             );
             Err(Exit::Usage)
         }
