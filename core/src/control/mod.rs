@@ -125,18 +125,13 @@ pub const PERSIST_WINDOW_S: u32 = 900;
 /// The short window of the likely view: after a burst's peak the 5-min mean falls first, s.
 pub const LIKELY_WINDOW_S: u32 = 300;
 
-/// Which view of the rain still to come a forecast takes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum View {
-    /// The drier of two assumptions: the recent intensity (the smaller of the 5- and 15-min
-    /// means) persisting for `persistence_s`, or the event following the IDF's
-    /// depth–duration shape ([`FutureRain::FollowIdf`]). Judged against crest − freeboard
-    /// (the freeboard absorbs the error when the storm grows).
-    Likely,
-    /// The wetter of the two (or the design-storm continuation when
-    /// `design_return_period_yr` is set): judged against the crest itself.
-    Upper,
-}
+// The forecast's two views of the rain still to come (`Controller::outlooks`):
+// - likely: the drier of the recent intensity (the smaller of the 5- and 15-min means)
+//   persisting for `persistence_s`, and the event following the IDF's depth–duration shape
+//   (`FutureRain::FollowIdf`); judged against crest − freeboard (the freeboard absorbs the
+//   error when the storm grows);
+// - upper: the wetter of the two, or the design-storm continuation when
+//   `design_return_period_yr` is set; judged against the crest itself.
 /// Dry time after which the forecast may end a storm early ("no more inflow"), s.
 pub const QUIET_S: u32 = 900;
 /// Interval of the stage trend (rising stage for the gauge clog check, stage-based inflow), s.
@@ -439,7 +434,8 @@ impl Controller {
     /// persistence, the design storm, or the stage-based estimate under a rain-gauge fault).
     /// For replays that compare the forecast with what happened; changes nothing.
     pub fn outlook_now(&self, cfg: &PondConfig, now_s: u32) -> Option<Outlook> {
-        self.outlook(cfg, now_s, self.faults.active().rain(), View::Upper)
+        let (likely, upper) = self.outlooks(cfg, now_s, self.faults.active().rain());
+        upper.or(likely)
     }
 
     fn log(&mut self, e: EventBody) {
@@ -503,13 +499,14 @@ impl Controller {
         counted > 0
     }
 
-    fn outlook(
+    /// The likely and the upper outlook (see the views above); the upper one is `None` where it is the
+    /// likely one (a gauge fault, no event, or both assumptions giving one outlook).
+    fn outlooks(
         &self,
         cfg: &PondConfig,
         now_s: u32,
         rain_fault: bool,
-        view: View,
-    ) -> Option<Outlook> {
+    ) -> (Option<Outlook>, Option<Outlook>) {
         let c = cfg.control();
         let idf: &dyn Idf = cfg.idf();
         if rain_fault {
@@ -520,7 +517,10 @@ impl Controller {
                 c.forecast_step_s,
                 c.horizon_s,
             )
-            .ok()?;
+            .ok();
+            let Some(base) = base else {
+                return (None, None);
+            };
             let mut q = [0.0_f32; forecast::MAX_OUTLOOK_STEPS];
             let mut t = 0u32;
             for (slot, &b) in q.iter_mut().zip(base.inflow_m3s()) {
@@ -532,7 +532,10 @@ impl Controller {
                 *slot = b.max(est);
                 t = t.saturating_add(c.forecast_step_s);
             }
-            return Outlook::from_samples(c.forecast_step_s, q.get(..base.steps())?).ok();
+            let look = q
+                .get(..base.steps())
+                .and_then(|q| Outlook::from_samples(c.forecast_step_s, q).ok());
+            return (look, None);
         }
         let event = self.gauge.as_ref().and_then(|g| g.current_event().copied());
         let intensity = |w: u32| {
@@ -550,39 +553,34 @@ impl Controller {
             )
             .ok()
         };
-        if let (View::Upper, Some(ev)) = (view, event)
-            && c.design_return_period_yr > 0.0
-        {
-            return look(&FutureRain::DesignStorm {
+        let design = match event {
+            Some(ev) if c.design_return_period_yr > 0.0 => look(&FutureRain::DesignStorm {
                 return_period_yr: c.design_return_period_yr,
                 elapsed_s: now_s.saturating_sub(ev.start_s),
                 depth_so_far_mm: ev.depth_mm,
-            });
-        }
+            }),
+            _ => None,
+        };
         let persist = look(&FutureRain::Persist {
             intensity_mm_h: intensity(LIKELY_WINDOW_S).min(intensity(PERSIST_WINDOW_S)),
             for_s: c.persistence_s,
         });
         // Following the curve only while it rains (the 5-min mean is the latest word).
-        let Some(ev) = event.filter(|_| intensity(LIKELY_WINDOW_S) > 0.0) else {
-            return persist;
-        };
-        let follow = look(&FutureRain::FollowIdf {
-            elapsed_s: now_s.saturating_sub(ev.start_s),
-            depth_so_far_mm: ev.depth_mm,
-            for_s: c.persistence_s,
-        });
-        match (persist, follow) {
-            (Some(p), Some(f)) => {
-                let follow_less = f.volume_m3() < p.volume_m3();
-                Some(if follow_less == (view == View::Likely) {
-                    f
-                } else {
-                    p
+        let follow = event
+            .filter(|_| intensity(LIKELY_WINDOW_S) > 0.0)
+            .and_then(|ev| {
+                look(&FutureRain::FollowIdf {
+                    elapsed_s: now_s.saturating_sub(ev.start_s),
+                    depth_so_far_mm: ev.depth_mm,
+                    for_s: c.persistence_s,
                 })
-            }
-            (p, f) => p.or(f),
-        }
+            });
+        let (likely, wetter) = match (persist, follow) {
+            (Some(p), Some(f)) if f.volume_m3() < p.volume_m3() => (Some(f), Some(p)),
+            (Some(p), Some(f)) => (Some(p), Some(f)),
+            (p, f) => (p.or(f), None),
+        };
+        (likely, design.or(wetter))
     }
 
     fn run_forecast(&mut self, cfg: &PondConfig, now_s: u32, storage_m3: f32, stage_m: f32) {
@@ -608,43 +606,57 @@ impl Controller {
         // Open above the permit when holding to it would cross `lim` and waiting for the next
         // forecast would leave even the full-open gate unable to hold it; once in Surcharge,
         // stay while holding to the permit would cross it anywhere in the horizon.
-        let judge = |look: &Outlook, lim: &Limits, lead_s: u32| -> (forecast::Prediction, bool) {
-            let p = forecast::predict(
-                pond,
-                outlet,
-                storage_m3,
-                look,
-                Policy::CapRelease { cap_m3s: target },
-                lim,
-            );
-            let act = p
-                .first_over_limit_s
-                .is_some_and(|t| surcharging || t <= lead_s)
+        let h0 = pond.stage_m(storage_m3);
+        // Holding the permit over `look`: with no inflow the stage can only fall, so nothing
+        // can cross what it is under now (no routing needed).
+        let at_permit = |look: &Outlook| -> Option<forecast::Prediction> {
+            (look.volume_m3() > 0.0 || h0 > limits.stage_limit_m).then(|| {
+                forecast::predict(
+                    pond,
+                    outlet,
+                    storage_m3,
+                    look,
+                    Policy::CapRelease { cap_m3s: target },
+                    &limits,
+                )
+            })
+        };
+        // Open above the permit when holding to it would cross `lim` (within `lead_s`) and
+        // waiting for the next forecast would leave even the full-open gate unable to hold
+        // it; once in Surcharge, stay while holding to it would cross it anywhere.
+        let act = |look: &Outlook, crossing_s: Option<u32>, lim: &Limits, lead_s: u32| {
+            crossing_s.is_some_and(|t| surcharging || t <= lead_s)
                 && (surcharging
-                    || !predict_deferred(pond, outlet, storage_m3, look, wait, lim).holds(lim));
-            (p, act)
+                    || !predict_deferred(pond, outlet, storage_m3, look, wait, lim).holds(lim))
         };
-        let likely = self.outlook(cfg, now_s, rain_fault, View::Likely);
-        let upper = if rain_fault {
-            None
-        } else {
-            self.outlook(cfg, now_s, rain_fault, View::Upper)
+        let crest_crossing = |p: &forecast::Prediction| {
+            (p.peak_stage_m > crest.stage_limit_m).then_some(p.peak_at_s)
         };
-        if let Some(look) = likely.as_ref() {
-            let (p, act) = judge(look, &limits, SURCHARGE_LEAD_S);
+        let (likely, upper) = self.outlooks(cfg, now_s, rain_fault);
+        let mut hold_crest: Option<&Outlook> = None;
+        if let Some(look) = likely.as_ref()
+            && let Some(p) = at_permit(look)
+        {
             fc.low_freeboard = p.first_over_limit_s.is_some_and(|t| t <= SURCHARGE_LEAD_S);
-            if act {
+            if act(look, p.first_over_limit_s, &limits, SURCHARGE_LEAD_S) {
                 let h = release_to_hold(pond, outlet, storage_m3, look, &limits);
                 fc.over_limit = true;
                 fc.cap_m3s = h.cap_m3s;
                 fc.feasible = h.feasible;
             }
+            if upper.is_none() && act(look, crest_crossing(&p), &crest, u32::MAX) {
+                hold_crest = Some(look);
+            }
         }
-        // The crest against the upper view of the rain to come (the likely one under a gauge
-        // fault), with no lead: the crest is never left to a later forecast.
-        if let Some(look) = upper.as_ref().or(likely.as_ref())
-            && judge(look, &crest, u32::MAX).1
+        // The crest against the upper view of the rain to come, with no lead: the crest is
+        // never left to a later forecast.
+        if let Some(look) = upper.as_ref()
+            && let Some(p) = at_permit(look)
+            && act(look, crest_crossing(&p), &crest, u32::MAX)
         {
+            hold_crest = Some(look);
+        }
+        if let Some(look) = hold_crest {
             let h = release_to_hold(pond, outlet, storage_m3, look, &crest);
             fc.cap_m3s = if fc.over_limit {
                 fc.cap_m3s.max(h.cap_m3s)
