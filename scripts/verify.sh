@@ -52,8 +52,10 @@ step "size budget of the board image (static data + the measured stack high-wate
 # controller + forecast ~18 KiB, flash log ~8 KiB, libm ~7 KiB; 80 KiB measured) and the
 # closed-loop run peaks at ~34 KiB of stack, of which ~18 KiB is booting (the 4 KiB blob
 # buffer plus holdback_core::packed::unpack's own frame) and ~4 KiB the in-RAM log flash
-# (which a real board has in flash). 96 KiB flash / 40 KiB RAM fit the 256 KiB / 64 KiB part
-# of memory.x; the old 48 KiB / 12 KiB budget predates the main loop.
+# (which a real board has in flash). The controller's forecast since weighs two views of the
+# rain to come and whether opening above the permit can wait (+4.4 KiB, 99,092 B measured).
+# 104 KiB flash / 40 KiB RAM fit the 256 KiB / 64 KiB part of memory.x; the old 48 KiB /
+# 12 KiB budget predates the main loop.
 probe_dir=$(mktemp -d)
 printf '\x00\x00\x00\x3f\x00\x00\x80\x40' >"$probe_dir/in.bin" # 0.5 and 4.0 as f32 LE
 stack_bytes=$(
@@ -64,7 +66,7 @@ stack_bytes=$(
     } | awk '/^stack: /{if ($2 > m) m = $2} END {print m + 0}'
 )
 rm -rf "$probe_dir"
-FLASH_BUDGET_BYTES=$((96 * 1024)) RAM_BUDGET_BYTES=$((40 * 1024)) STACK_RESERVE_BYTES=$stack_bytes \
+FLASH_BUDGET_BYTES=$((104 * 1024)) RAM_BUDGET_BYTES=$((40 * 1024)) STACK_RESERVE_BYTES=$stack_bytes \
     bash scripts/size-report.sh "$board_elf"
 
 step "fleet store on a real PostgreSQL server (installed and started on loopback by the script)"
