@@ -1054,25 +1054,22 @@ pub fn predict_deferred(
     let at_permit = Policy::CapRelease {
         cap_m3s: limits.permit_m3s,
     };
-    let k = wait_steps.min(outlook.steps());
-    let (Some(first), Some(rest)) = (outlook.inflow_m3s.get(..k), outlook.inflow_m3s.get(k..))
-    else {
-        return predict(pond, outlet, storage_m3, outlook, at_permit, limits);
+    let open = Policy::Fixed {
+        opening_m: outlet.max_opening_m(),
     };
-    if rest.is_empty() {
-        return predict(pond, outlet, storage_m3, outlook, at_permit, limits);
-    }
+    let k = wait_steps.min(outlook.steps());
+    let (first, rest) = match outlook.inflow_m3s.split_at_checked(k) {
+        Some((_, [])) | None => {
+            return predict(pond, outlet, storage_m3, outlook, at_permit, limits);
+        }
+        Some(([], _)) => return predict(pond, outlet, storage_m3, outlook, open, limits),
+        Some(parts) => parts,
+    };
     let part = |inflow: &[f32]| Outlook {
         step_s: outlook.step_s,
         inflow_m3s: inflow.iter().copied().collect(),
         future_rain_mm: 0.0,
     };
-    let open = Policy::Fixed {
-        opening_m: outlet.max_opening_m(),
-    };
-    if first.is_empty() {
-        return predict(pond, outlet, storage_m3, outlook, open, limits);
-    }
     let a = predict(pond, outlet, storage_m3, &part(first), at_permit, limits);
     let b = predict(pond, outlet, a.end_storage_m3, &part(rest), open, limits);
     let offset = outlook

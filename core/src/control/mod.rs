@@ -14,9 +14,11 @@
 //! 1. **Never overtop when avoidable.** A forecast ([`crate::forecast`]) at the permit target
 //!    runs every `forecast_every_s` while anything is happening (rain in the inter-event time,
 //!    runoff arriving, stage above the normal band). Its *likely* view of the rain to come is
-//!    the smaller of the [`LIKELY_WINDOW_S`] and [`PERSIST_WINDOW_S`] mean intensities for
-//!    `persistence_s`; its *upper* view, judged against the crest only, is the design-storm
-//!    continuation when `design_return_period_yr` is set (else the likely view). Surcharge
+//!    the drier of two assumptions: the smaller of the [`LIKELY_WINDOW_S`] and
+//!    [`PERSIST_WINDOW_S`] mean intensities persisting for `persistence_s`, and the event
+//!    following the IDF's depth–duration shape ([`FutureRain::FollowIdf`]); its *upper* view,
+//!    judged against the crest only, is the wetter of the two, or the design-storm
+//!    continuation when `design_return_period_yr` is set. Surcharge
 //!    starts when holding the permit crosses crest − freeboard within [`SURCHARGE_LEAD_S`]
 //!    (likely view) or the crest at any time (upper view) **and** waiting does not pay:
 //!    [`forecast::predict_deferred`] — the permit for [`Controller::wait_steps`] more steps
