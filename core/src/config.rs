@@ -95,6 +95,13 @@ impl Idf for IdfModel {
             IdfModel::Table(t) => t.intensity_at(duration_min, k),
         }
     }
+
+    fn first_depth_non_decreasing(&self) -> bool {
+        match self {
+            IdfModel::Curves(c) => c.first_depth_non_decreasing(),
+            IdfModel::Table(t) => t.first_depth_non_decreasing(),
+        }
+    }
 }
 
 /// The levels that matter to control, m on the survey datum.

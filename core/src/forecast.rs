@@ -207,6 +207,69 @@ pub enum FutureRain {
     },
 }
 
+impl FutureRain {
+    /// The depth this assumption brings over `runoff_steps` steps of `dt_s` from now, mm:
+    /// the same terms summed in the same order as the `future_rain_mm` of an
+    /// [`Outlook::from_time_area`] over that many runoff steps, without the convolution
+    /// (`idf` is needed for [`FutureRain::DesignStorm`] and [`FutureRain::FollowIdf`]).
+    ///
+    /// With the pending runoff ([`crate::runoff::TimeAreaInflow::pending_volume_m3`]) and the
+    /// catchment's effective area it bounds the volume an outlook can bring, so a forecast
+    /// can tell cheaply that no routing of it could reach a limit.
+    pub fn depth_mm(
+        &self,
+        idf: Option<&dyn Idf>,
+        dt_s: u32,
+        runoff_steps: u32,
+    ) -> Result<f32, ForecastError> {
+        let Some(mut src) = FutureSteps::new(self, idf, dt_s)? else {
+            return Ok(0.0);
+        };
+        let mut total_mm = 0.0_f32;
+        for _ in 0..runoff_steps {
+            if src.exhausted() {
+                break;
+            }
+            total_mm += src.next_mm();
+        }
+        Ok(total_mm)
+    }
+
+    /// At least [`FutureRain::depth_mm`], mm, and cheaper where the IDF's depth is known
+    /// never to fall with duration ([`Idf::first_depth_non_decreasing`]): then the rises of
+    /// [`FutureRain::FollowIdf`] telescope, and its depth is at most
+    /// `ratio · (D(end) − D(e))`, widened by the rounding of up to `runoff_steps` terms.
+    /// Other assumptions are summed as [`FutureRain::depth_mm`] sums them.
+    pub fn depth_at_most_mm(
+        &self,
+        idf: Option<&dyn Idf>,
+        dt_s: u32,
+        runoff_steps: u32,
+    ) -> Result<f32, ForecastError> {
+        if let Some(FutureSteps::Follow {
+            idf,
+            return_period_yr,
+            ratio,
+            end_s,
+            prev_mm,
+            ..
+        }) = FutureSteps::new(self, idf, dt_s)?
+            && idf.first_depth_non_decreasing()
+        {
+            let end_mm = sane(idf.depth_mm(secs(end_s) / 60.0, return_period_yr));
+            #[allow(clippy::cast_precision_loss)]
+            let rounding = 4.0 * f32::EPSILON * end_mm * (runoff_steps as f32 + 1.0);
+            let rise = if end_mm > prev_mm {
+                end_mm - prev_mm
+            } else {
+                0.0
+            };
+            return Ok(ratio * (rise + rounding) * (1.0 + 1.0e-3));
+        }
+        self.depth_mm(idf, dt_s, runoff_steps)
+    }
+}
+
 /// Shortest elapsed time [`FutureRain::FollowIdf`] scales from, s (below it one tip is too
 /// much of the depth so far).
 pub const FOLLOW_MIN_ELAPSED_S: u32 = 300;
@@ -296,6 +359,21 @@ impl Outlook {
             });
         }
         let mut future_rain = FutureSteps::new(future, idf, dt_s)?;
+        // No runoff on its way and no rain assumed: every step is exactly +0 (the loop below
+        // would add only +0 terms), so the outlook is written without the loop.
+        if runoff.all_dry() && future_rain.as_ref().is_none_or(FutureSteps::is_dry) {
+            let mut v = heapless::Vec::new();
+            v.resize(steps as usize, 0.0)
+                .map_err(|_| ForecastError::TooManySteps {
+                    steps,
+                    capacity: MAX_OUTLOOK_STEPS,
+                })?;
+            return Ok(Self {
+                step_s,
+                inflow_m3s: v,
+                future_rain_mm: 0.0,
+            });
+        }
         let ords = runoff.response().ordinates_m2();
         let scale = M3_PER_MM_M2 / secs(dt_s);
         // Assumed future rain of the last MAX_TIME_AREA_STEPS runoff steps, a ring indexed by
@@ -465,6 +543,31 @@ impl<'a> FutureSteps<'a> {
                 })
             }
         })
+    }
+
+    /// Whether every step brings exactly no rain (a persistence of zero intensity or
+    /// duration).
+    fn is_dry(&self) -> bool {
+        match *self {
+            FutureSteps::Persist {
+                mm_per_s, for_s, ..
+            } => mm_per_s == 0.0 || for_s == 0,
+            FutureSteps::Design { .. } | FutureSteps::Follow { .. } => false,
+        }
+    }
+
+    /// Whether every later step brings exactly +0 mm (adding them changes no sum).
+    fn exhausted(&self) -> bool {
+        match *self {
+            FutureSteps::Persist {
+                mm_per_s,
+                for_s,
+                t_s,
+                ..
+            } => mm_per_s == 0.0 || t_s >= for_s,
+            FutureSteps::Follow { t_s, end_s, .. } => t_s >= end_s,
+            FutureSteps::Design { .. } => false,
+        }
     }
 
     /// Rain depth of the next runoff step, mm (≥ 0).
@@ -1195,6 +1298,110 @@ mod tests {
         let o = CircularOrifice::new(0.0, 0.15, 0.6).unwrap();
         let g = SluiceGate::new(0.0, 0.5, 0.5, 0.61, 0.98).unwrap();
         Outlet::new(&[o.into()], Some(g), None).unwrap()
+    }
+
+    fn sherman(c: f32) -> crate::rain::IdfCurves {
+        crate::rain::IdfCurves::new(
+            &[
+                (
+                    2.0,
+                    crate::rain::IdfFormula::Sherman {
+                        a: 850.0,
+                        b: 10.0,
+                        c,
+                    },
+                ),
+                (
+                    10.0,
+                    crate::rain::IdfFormula::Sherman {
+                        a: 1350.0,
+                        b: 10.0,
+                        c,
+                    },
+                ),
+            ],
+            5.0,
+            1440.0,
+        )
+        .unwrap()
+    }
+
+    /// `FutureRain::depth_mm` is the outlook's own future depth, bit for bit, for every
+    /// assumption (the bound the controller skips routing on is built from it), and
+    /// `depth_at_most_mm` never undercuts it (Sherman c = 0.8, whose depth rises with
+    /// duration; the telescoped bound is checked against the step-by-step sum).
+    #[test]
+    fn future_depth_matches_the_outlook_and_its_bound_covers_it() {
+        use crate::runoff::{TimeAreaInflow, TimeAreaResponse};
+        let idf = sherman(0.8);
+        let resp = TimeAreaResponse::from_fractions(
+            60,
+            crate::runoff::RunoffCoefficient::new(0.8).unwrap(),
+            crate::runoff::AreaHa::new(2.5).unwrap(),
+            &[0.2, 0.5, 0.3],
+        )
+        .unwrap();
+        let mut ta = TimeAreaInflow::new(resp);
+        ta.push_step(1.5);
+        let assumptions = [
+            FutureRain::Dry,
+            FutureRain::Persist {
+                intensity_mm_h: 0.0,
+                for_s: 1800,
+            },
+            FutureRain::Persist {
+                intensity_mm_h: 37.0,
+                for_s: 1800,
+            },
+            FutureRain::DesignStorm {
+                return_period_yr: 10.0,
+                elapsed_s: 600,
+                depth_so_far_mm: 4.0,
+            },
+            FutureRain::FollowIdf {
+                elapsed_s: 900,
+                depth_so_far_mm: 6.0,
+                for_s: 1800,
+            },
+            FutureRain::FollowIdf {
+                elapsed_s: 40_000,
+                depth_so_far_mm: 60.0,
+                for_s: 1800,
+            },
+        ];
+        for f in assumptions {
+            let look = Outlook::from_time_area(&ta, &f, Some(&idf), 180, 10_800).unwrap();
+            let d = f.depth_mm(Some(&idf), 60, 180).unwrap();
+            assert_eq!(d.to_bits(), look.future_rain_mm().to_bits(), "{f:?}");
+            let up = f.depth_at_most_mm(Some(&idf), 60, 180).unwrap();
+            assert!(up >= d, "{f:?}: bound {up} under {d}");
+            assert!(up <= d * 1.01 + 1e-3, "{f:?}: bound {up} too loose for {d}");
+        }
+        // Sherman c > 1: the depth falls at long durations, so no telescoped bound is taken.
+        assert!(!sherman(1.2).first_depth_non_decreasing());
+        assert!(sherman(0.8).first_depth_non_decreasing());
+    }
+
+    /// No runoff on its way and no rain assumed: the outlook is all +0 over the horizon.
+    #[test]
+    fn dry_outlook_is_all_zero_over_the_horizon() {
+        use crate::runoff::{TimeAreaInflow, TimeAreaResponse};
+        let resp = TimeAreaResponse::from_fractions(
+            60,
+            crate::runoff::RunoffCoefficient::new(0.8).unwrap(),
+            crate::runoff::AreaHa::new(1.0).unwrap(),
+            &[0.5, 0.5],
+        )
+        .unwrap();
+        let ta = TimeAreaInflow::new(resp);
+        let f = FutureRain::Persist {
+            intensity_mm_h: 0.0,
+            for_s: 1800,
+        };
+        let look = Outlook::from_time_area(&ta, &f, None, 180, 10_800).unwrap();
+        assert_eq!(look.steps(), 60);
+        assert!(look.inflow_m3s().iter().all(|q| q.to_bits() == 0));
+        assert_eq!(look.future_rain_mm().to_bits(), 0);
     }
 
     /// A closed pond with a closed outlet stores the whole outlook volume (continuity).

@@ -579,11 +579,7 @@ fn segment_depth(segment: Segment, r0: &Row, r1: &Row, dv: f32) -> f32 {
             let r0a = r0.root_area_m;
             let c = (r1.root_area_m - r0a) / dh;
             let cube = r0a * r0a * r0a + 3.0 * c * dv;
-            let big_r = if cube > 0.0 {
-                math::powf(cube, 1.0 / 3.0)
-            } else {
-                0.0
-            };
+            let big_r = if cube > 0.0 { math::cbrt(cube) } else { 0.0 };
             (3.0 * dv, big_r * big_r + big_r * r0a + r0a * r0a)
         }
         Segment::LinearVolume => (dv, r0.area_m2),

@@ -134,6 +134,21 @@ pub const LIKELY_WINDOW_S: u32 = 300;
 //   error when the storm grows);
 // - upper: the wetter of the two, or the design-storm continuation when
 //   `design_return_period_yr` is set; judged against the crest itself.
+/// The views of the rain to come that one forecast weighs (`Controller::views`).
+struct Views {
+    persist: FutureRain,
+    follow: Option<FutureRain>,
+    design: Option<FutureRain>,
+}
+
+/// Room on the inflow bound for f32 rounding of the outlook's sums, relative.
+const BOUND_ROOM_REL: f32 = 1.0e-3;
+/// Room on the inflow bound for f32 rounding of the outlook's sums, m³.
+const BOUND_ROOM_M3: f32 = 1.0;
+/// How far under the stage limit the bound must stay before a forecast skips routing, m:
+/// fifty times the forecast solver's stage tolerance ([`forecast::STAGE_TOLERANCE_M`]).
+pub const BOUND_MARGIN_M: f32 = 50.0 * forecast::STAGE_TOLERANCE_M;
+
 /// Dry time after which the forecast may end a storm early ("no more inflow"), s.
 pub const QUIET_S: u32 = 900;
 /// Interval of the stage trend (rising stage for the gauge clog check, stage-based inflow), s.
@@ -539,12 +554,7 @@ impl Controller {
                 .and_then(|q| Outlook::from_samples(c.forecast_step_s, q).ok());
             return (look, None);
         }
-        let event = self.gauge.as_ref().and_then(|g| g.current_event().copied());
-        let intensity = |w: u32| {
-            self.gauge
-                .as_ref()
-                .map_or(0.0, |g| g.reading(now_s, w).intensity_mm_h)
-        };
+        let views = self.views(cfg, now_s);
         let look = |future: &FutureRain| {
             Outlook::from_time_area(
                 &self.runoff,
@@ -555,34 +565,77 @@ impl Controller {
             )
             .ok()
         };
-        let design = match event {
-            Some(ev) if c.design_return_period_yr > 0.0 => look(&FutureRain::DesignStorm {
-                return_period_yr: c.design_return_period_yr,
-                elapsed_s: now_s.saturating_sub(ev.start_s),
-                depth_so_far_mm: ev.depth_mm,
-            }),
-            _ => None,
-        };
-        let persist = look(&FutureRain::Persist {
-            intensity_mm_h: intensity(LIKELY_WINDOW_S).min(intensity(PERSIST_WINDOW_S)),
-            for_s: c.persistence_s,
-        });
-        // Following the curve only while it rains (the 5-min mean is the latest word).
-        let follow = event
-            .filter(|_| intensity(LIKELY_WINDOW_S) > 0.0)
-            .and_then(|ev| {
-                look(&FutureRain::FollowIdf {
-                    elapsed_s: now_s.saturating_sub(ev.start_s),
-                    depth_so_far_mm: ev.depth_mm,
-                    for_s: c.persistence_s,
-                })
-            });
+        let design = views.design.as_ref().and_then(look);
+        let persist = look(&views.persist);
+        let follow = views.follow.as_ref().and_then(look);
         let (likely, wetter) = match (persist, follow) {
             (Some(p), Some(f)) if f.volume_m3() < p.volume_m3() => (Some(f), Some(p)),
             (Some(p), Some(f)) => (Some(p), Some(f)),
             (p, f) => (p.or(f), None),
         };
         (likely, design.or(wetter))
+    }
+
+    /// The assumptions about the rain still to come that the forecast weighs (see the views
+    /// above): persistence of the recent intensity, the IDF-shaped continuation while it
+    /// rains, and the design-storm continuation when a design return period is set.
+    fn views(&self, cfg: &PondConfig, now_s: u32) -> Views {
+        let c = cfg.control();
+        let event = self.gauge.as_ref().and_then(|g| g.current_event().copied());
+        let intensity = |w: u32| {
+            self.gauge
+                .as_ref()
+                .map_or(0.0, |g| g.reading(now_s, w).intensity_mm_h)
+        };
+        let short_mm_h = intensity(LIKELY_WINDOW_S);
+        let design =
+            event
+                .filter(|_| c.design_return_period_yr > 0.0)
+                .map(|ev| FutureRain::DesignStorm {
+                    return_period_yr: c.design_return_period_yr,
+                    elapsed_s: now_s.saturating_sub(ev.start_s),
+                    depth_so_far_mm: ev.depth_mm,
+                });
+        let persist = FutureRain::Persist {
+            intensity_mm_h: short_mm_h.min(intensity(PERSIST_WINDOW_S)),
+            for_s: c.persistence_s,
+        };
+        // Following the curve only while it rains (the 5-min mean is the latest word).
+        let follow = event
+            .filter(|_| short_mm_h > 0.0)
+            .map(|ev| FutureRain::FollowIdf {
+                elapsed_s: now_s.saturating_sub(ev.start_s),
+                depth_so_far_mm: ev.depth_mm,
+                for_s: c.persistence_s,
+            });
+        Views {
+            persist,
+            follow,
+            design,
+        }
+    }
+
+    /// Most inflow volume any view of the rain to come can bring over the horizon, m³: the
+    /// runoff still on its way plus the deepest view's rain over the whole effective area,
+    /// with room for f32 rounding. `None` if a view cannot be evaluated.
+    fn inflow_bound_m3(&self, cfg: &PondConfig, now_s: u32) -> Option<f32> {
+        let c = cfg.control();
+        let idf: &dyn Idf = cfg.idf();
+        let dt_r = self.runoff.response().dt_s().max(1);
+        let runoff_steps = c
+            .horizon_s
+            .div_ceil(c.forecast_step_s.max(1))
+            .saturating_mul(c.forecast_step_s.checked_div(dt_r).unwrap_or(0));
+        let views = self.views(cfg, now_s);
+        let depth = |f: &FutureRain| f.depth_at_most_mm(Some(idf), dt_r, runoff_steps).ok();
+        let mut deepest_mm = depth(&views.persist)?;
+        for f in views.follow.iter().chain(views.design.iter()) {
+            deepest_mm = deepest_mm.max(depth(f)?);
+        }
+        let area_m2 = self.runoff.response().effective_area_m2();
+        let v = self.runoff.pending_volume_m3() + deepest_mm * 1.0e-3 * area_m2;
+        let v = v * (1.0 + BOUND_ROOM_REL) + BOUND_ROOM_M3;
+        v.is_finite().then_some(v)
     }
 
     fn run_forecast(&mut self, cfg: &PondConfig, now_s: u32, storage_m3: f32, stage_m: f32) {
@@ -634,9 +687,31 @@ impl Controller {
         let crest_crossing = |p: &forecast::Prediction| {
             (p.peak_stage_m > crest.stage_limit_m).then_some(p.peak_at_s)
         };
-        let (likely, upper) = self.outlooks(cfg, now_s, rain_fault);
+        // Nothing to route when even releasing nothing while every m³ any view can bring
+        // arrives keeps the pond under the stage limit: no routing of an outlook could then
+        // cross it (storage never exceeds the start plus the inflow), so no crossing, no
+        // low-freeboard alarm and no Surcharge. Most forecasts of a long record end here.
+        let cannot_reach = !rain_fault
+            && self.inflow_bound_m3(cfg, now_s).is_some_and(|v| {
+                pond.stage_m(storage_m3 + v) < limits.stage_limit_m - BOUND_MARGIN_M
+            });
+        let quiet = self
+            .last_rain_s
+            .is_none_or(|t| now_s.saturating_sub(t) >= QUIET_S);
+        // The outlooks are still needed after rain has stopped, for "no more inflow".
+        let (likely, upper) = if cannot_reach && !quiet {
+            fc.no_more_inflow = false;
+            (None, None)
+        } else {
+            self.outlooks(cfg, now_s, rain_fault)
+        };
+        let (likely_routed, upper_routed) = if cannot_reach {
+            (None, None)
+        } else {
+            (likely.as_ref(), upper.as_ref())
+        };
         let mut hold_crest: Option<&Outlook> = None;
-        if let Some(look) = likely.as_ref()
+        if let Some(look) = likely_routed
             && let Some(p) = at_permit(look)
         {
             fc.low_freeboard = p.first_over_limit_s.is_some_and(|t| t <= SURCHARGE_LEAD_S);
@@ -646,13 +721,13 @@ impl Controller {
                 fc.cap_m3s = h.cap_m3s;
                 fc.feasible = h.feasible;
             }
-            if upper.is_none() && act(look, crest_crossing(&p), &crest, u32::MAX) {
+            if upper_routed.is_none() && act(look, crest_crossing(&p), &crest, u32::MAX) {
                 hold_crest = Some(look);
             }
         }
         // The crest against the upper view of the rain to come, with no lead: the crest is
         // never left to a later forecast.
-        if let Some(look) = upper.as_ref()
+        if let Some(look) = upper_routed
             && let Some(p) = at_permit(look)
             && act(look, crest_crossing(&p), &crest, u32::MAX)
         {
@@ -669,9 +744,6 @@ impl Controller {
             fc.over_limit = true;
         }
         if let Some(look) = upper.as_ref().or(likely.as_ref()) {
-            let quiet = self
-                .last_rain_s
-                .is_none_or(|t| now_s.saturating_sub(t) >= QUIET_S);
             fc.no_more_inflow = quiet && look.volume_m3() <= 0.01 * above_m3.max(100.0);
         }
         if self.mode == Mode::Drawdown {

@@ -79,6 +79,18 @@ impl IdfFormula {
         }
     }
 
+    /// Whether the depth `i(t)·t` never falls as the duration grows, for every t > 0:
+    /// Talbot always (`a·t/(t + b)`, b ≥ 0); Sherman when `c ≤ 1` (the derivative of
+    /// `t/(t + b)^c` has the sign of `b + (1 − c)·t`); the power law when `b ≤ 1`
+    /// (`a·t^(1−b)`).
+    pub fn depth_non_decreasing(&self) -> bool {
+        match *self {
+            IdfFormula::Talbot { .. } => true,
+            IdfFormula::Sherman { c, .. } => c <= 1.0,
+            IdfFormula::PowerLaw { b, .. } => b <= 1.0,
+        }
+    }
+
     fn validate(&self) -> Result<(), RainError> {
         match *self {
             IdfFormula::Talbot { a, b } => {
@@ -195,6 +207,12 @@ pub trait Idf {
     /// Depth for `duration_min` and `return_period_years`: intensity × duration / 60, mm.
     fn depth_mm(&self, duration_min: f32, return_period_years: f32) -> f32 {
         self.intensity_mm_h(duration_min, return_period_years) * duration_min / 60.0
+    }
+
+    /// Whether the depth of the first tabulated return period is known never to fall as the
+    /// duration grows (true only where the form proves it; a table says false).
+    fn first_depth_non_decreasing(&self) -> bool {
+        false
     }
 
     /// Return period of a mean intensity `intensity_mm_h` sustained over `duration_min`,
@@ -372,6 +390,11 @@ impl Idf for IdfCurves {
             .get(k)
             .map_or(0.0, |f| f.intensity_mm_h(duration_min))
     }
+    fn first_depth_non_decreasing(&self) -> bool {
+        self.formulas
+            .first()
+            .is_some_and(IdfFormula::depth_non_decreasing)
+    }
 }
 
 /// An IDF table: intensities at tabulated durations × return periods.
@@ -500,6 +523,41 @@ impl Idf for IdfTable {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The monotone-depth claim of each form against sampled depths `i(t)·t` (the derivative
+    /// argument in `depth_non_decreasing`): where it says true, no sampled depth falls; the
+    /// Sherman curve with c = 1.5 and b = 10 min falls beyond t = b/(c − 1) = 20 min.
+    #[test]
+    fn depth_non_decreasing_agrees_with_sampled_depths() {
+        let forms = [
+            IdfFormula::Talbot { a: 3000.0, b: 10.0 },
+            IdfFormula::Sherman {
+                a: 850.0,
+                b: 10.0,
+                c: 0.8,
+            },
+            IdfFormula::Sherman {
+                a: 850.0,
+                b: 10.0,
+                c: 1.0,
+            },
+            IdfFormula::PowerLaw { a: 400.0, b: 0.7 },
+            IdfFormula::Sherman {
+                a: 850.0,
+                b: 10.0,
+                c: 1.5,
+            },
+            IdfFormula::PowerLaw { a: 400.0, b: 1.3 },
+        ];
+        for f in forms {
+            let depth = |t: f64| f64::from(f.intensity_mm_h(t as f32)) * t;
+            let falls = (1..2000).any(|k| {
+                let t = f64::from(k) * 0.75;
+                depth(t + 0.75) < depth(t) * (1.0 - 1e-6)
+            });
+            assert_eq!(f.depth_non_decreasing(), !falls, "{f:?}");
+        }
+    }
 
     #[test]
     fn segment_picks_bracket_or_end() {

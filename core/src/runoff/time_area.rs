@@ -229,8 +229,8 @@ impl TimeAreaInflow {
         self.dry_steps = self.response.ordinates_m2.len();
     }
 
-    /// Whether every live slot of the ring holds zero rain.
-    fn all_dry(&self) -> bool {
+    /// Whether every live slot of the ring holds zero rain (no runoff is on its way).
+    pub fn all_dry(&self) -> bool {
         self.dry_steps >= self.response.ordinates_m2.len()
     }
 
@@ -291,7 +291,12 @@ impl TimeAreaInflow {
     pub fn projected_inflow_m3s(&self, ahead_steps: usize, rain_mm_per_step: f32) -> f32 {
         let future = live_non_negative(rain_mm_per_step);
         let ords = &self.response.ordinates_m2;
-        let from_future = ords.iter().take(ahead_steps).sum::<f32>() * future;
+        // No future rain gives exactly +0 (a finite sum times +0), so the sum is skipped.
+        let from_future = if future == 0.0 {
+            0.0
+        } else {
+            ords.iter().take(ahead_steps).sum::<f32>() * future
+        };
         // A dry ring gives exactly +0 (every term is ±0 and the sum starts at +0), so the dot
         // product is skipped: same bits, no work in dry weather.
         let from_past = if self.all_dry() {
