@@ -112,7 +112,7 @@ fn main() {
         println!(
             "{:<10} simulated {:.1} years ({} steps) in {wall:.2} s wall: {:.3e} simulated s \
              per wall s ({:.0} ns per 60-s step); peak stage {:.3} m, {} events, time over \
-             permit {} s, fingerprint {:016x}",
+             permit {} s, {} gate moves, fingerprint {:016x}",
             kind.name(),
             sim_s / 365.25 / 86_400.0,
             r.length_s / 60,
@@ -121,6 +121,7 @@ fn main() {
             r.peak_stage_m,
             r.events.len(),
             r.time_over_permit_s,
+            r.gate_moves,
             fingerprint(&r)
         );
     }

@@ -548,8 +548,15 @@ fn run_options(p: &Pond, a: &SimArgs) -> Result<RunOptions, Fail> {
             .map_err(|e| bad(format!("cannot read {}: {e}", path.display())))?;
         let f: FaultFile = toml::from_str(&text)
             .map_err(|e| bad(format!("{}: {}", path.display(), e.message())))?;
+        for fault in &f.fault {
+            fault
+                .check()
+                .map_err(|e| bad(format!("{}: {e}", path.display())))?;
+        }
         faults.extend(f.fault);
         if let Some(m) = f.models {
+            m.check()
+                .map_err(|e| bad(format!("{}: {e}", path.display())))?;
             models = m;
         }
     }
@@ -597,12 +604,23 @@ fn replay(
         let sm = summary::summarise(p, s, &r, opts.seed, &opts.faults, Some(&bound));
         summaries.push((r, sm));
     }
+    if summaries.is_empty() {
+        return Err(bad(
+            "no policy left to run (fixed needs an [existing] outlet in the pond file)",
+        ));
+    }
     print!("{}", report::summary_table(&summaries));
     if let Some(dir) = out {
         report::write_all(p, s, &summaries, dir).map_err(bad)?;
         eprintln!("holdback: wrote results into {}", dir.display());
     }
-    let pass = summaries.first().is_none_or(|(_, sm)| sm.pass);
+    // The exit code judges the controller when it ran (the policy the device runs), else
+    // the first policy listed.
+    let judged = summaries
+        .iter()
+        .find(|(r, _)| r.policy == PolicyKind::Controller)
+        .or(summaries.first());
+    let pass = judged.is_none_or(|(_, sm)| sm.pass);
     Ok(if pass { 0 } else { 1 })
 }
 

@@ -171,6 +171,18 @@ pub fn parse_iso(s: &str) -> Result<i64, String> {
     if !(1..=12).contains(&mo) || !(1..=31).contains(&da) || h > 23 || mi > 59 || se > 60 {
         return Err(format!("time {s:?}: a field is out of range"));
     }
+    let leap = (y % 4 == 0 && y % 100 != 0) || y % 400 == 0;
+    let month_days = match mo {
+        2 if leap => 29,
+        2 => 28,
+        4 | 6 | 9 | 11 => 30,
+        _ => 31,
+    };
+    if da > month_days {
+        return Err(format!(
+            "time {s:?}: month {mo} of {y} has {month_days} days"
+        ));
+    }
     Ok(days_from_civil(y, mo, da) * 86_400 + h * 3600 + mi * 60 + se)
 }
 
@@ -239,6 +251,10 @@ pub fn parse(text: &str, fmt: &RainFormat) -> Result<RainRecord, String> {
         DepthUnit::Mm => 1.0,
         DepthUnit::In => 25.4,
     };
+    // Most rain one row may hold: 40 mm a minute over its interval (at least one minute),
+    // just above the heaviest one-minute rain recorded (about 38 mm, from memory). Only a
+    // unit or column mistake gets past it; such a row is reported, not replayed.
+    let max_row_mm = 40.0 * (f64::from(fmt.interval_s) / 60.0).max(1.0);
     // (line, interval start s, depth mm)
     let mut rows: Vec<(usize, i64, f64)> = Vec::new();
     let mut bad = Vec::new();
@@ -261,7 +277,20 @@ pub fn parse(text: &str, fmt: &RainFormat) -> Result<RainRecord, String> {
         let depth = match dcol {
             None => fmt.bucket_mm,
             Some(c) => match cells.get(c).map(|s| s.trim().parse::<f64>()) {
-                Some(Ok(d)) if d.is_finite() && d >= 0.0 => d * to_mm,
+                Some(Ok(d)) if d.is_finite() && d >= 0.0 && d * to_mm <= max_row_mm => d * to_mm,
+                Some(Ok(d)) if d.is_finite() && d >= 0.0 => {
+                    bad.push(RowProblem {
+                        line,
+                        message: format!(
+                            "depth {d} ({:.0} mm) is more than {max_row_mm:.0} mm in {} s, \
+                             beyond the heaviest rain ever recorded (about 38 mm in one minute, \
+                             from memory); check the depth column and --unit",
+                            d * to_mm,
+                            fmt.interval_s
+                        ),
+                    });
+                    continue;
+                }
                 Some(Ok(d)) => {
                     bad.push(RowProblem {
                         line,
@@ -292,6 +321,16 @@ pub fn parse(text: &str, fmt: &RainFormat) -> Result<RainRecord, String> {
             (RainKind::Interval, Stamp::End) => t - i64::from(fmt.interval_s),
             _ => t,
         };
+        if fmt.kind == RainKind::Interval
+            && let Some(&(pl, ps, _)) = rows.last()
+            && start == ps
+        {
+            bad.push(RowProblem {
+                line,
+                message: format!("the same interval as line {pl} again: not added twice"),
+            });
+            continue;
+        }
         if let Some(&(pl, ps, _)) = rows.last()
             && start < ps
         {
@@ -449,6 +488,39 @@ mod tests {
         assert_eq!(r.gaps[0].missing_s, 300);
         assert_eq!((r.gaps[1].after_line, r.gaps[1].before_line), (4, 5));
         assert_eq!(r.gaps[1].missing_s, 600);
+    }
+
+    /// Rows that would be read wrongly are reported by line and kept out of the record: a
+    /// date that does not exist (2021 is not a leap year), the same interval twice (it would
+    /// count twice), and a depth no rain reaches (1e30 mm made the replay's release read 0 and
+    /// pass the permit); the good rows are all kept.
+    #[test]
+    fn impossible_dates_duplicates_and_absurd_depths_are_reported_not_replayed() {
+        assert!(parse_iso("2021-02-29 00:00").is_err());
+        assert!(parse_iso("2020-02-29 00:00").is_ok());
+        assert!(parse_iso("2020-04-31 00:00").is_err());
+        let text = "t,mm\n2021-01-01 00:00,1.0\n2021-01-01 00:00,1.0\n2021-01-01 00:05,1e30\n\
+                    2021-01-01 00:10,2.0\n2021-02-31 00:15,1.0\n";
+        let r = parse(text, &fmt()).unwrap();
+        assert_eq!(r.rows_read, 2);
+        assert_eq!(r.total_mm(), 3.0);
+        let lines: Vec<usize> = r.bad_rows.iter().map(|b| b.line).collect();
+        assert_eq!(lines, [3, 4, 6]);
+        assert!(
+            r.bad_rows[0].to_string().contains("line 2"),
+            "{}",
+            r.bad_rows[0]
+        );
+        assert!(
+            r.bad_rows[1].to_string().contains("heaviest rain"),
+            "{}",
+            r.bad_rows[1]
+        );
+        assert!(
+            r.bad_rows[2].to_string().contains("28 days"),
+            "{}",
+            r.bad_rows[2]
+        );
     }
 
     /// A stray far-off timestamp (found by fuzzing: it made the reader allocate gigabytes of

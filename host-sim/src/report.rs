@@ -485,11 +485,16 @@ pub fn html(p: &Pond, storm: &Storm, runs: &[(Run, Summary)], svg: &str) -> Stri
         esc(&p.name),
         CAUTION_HTML
     );
-    let verdict = runs.first().is_none_or(|(_, m)| m.pass);
+    // The verdict judges the controller when it ran (the device's policy), else the first.
+    let judged = runs
+        .iter()
+        .find(|(_, m)| m.policy == "controller")
+        .or(runs.first());
+    let verdict = judged.is_none_or(|(_, m)| m.pass);
     let _ = write!(
         h,
         "<h2>Verdict</h2><p>Policy <b>{}</b> on storm <b>{}</b>: <span class=\"{}\">{}</span></p>",
-        runs.first().map_or("-", |(_, m)| m.policy),
+        judged.map_or("-", |(_, m)| m.policy),
         esc(&storm.name),
         if verdict { "pass" } else { "fail" },
         if verdict {
@@ -563,8 +568,25 @@ pub fn html(p: &Pond, storm: &Storm, runs: &[(Run, Summary)], svg: &str) -> Stri
         );
     }
     h.push_str("</table><p>The bound is the perfect-foresight schedule (release = min(permit, full-open capacity) from the first drop): no policy that keeps the permit stores less. The controller is the device's own control code (holdback-core), stepped on the sensor models; threshold is the level-threshold baseline; fixed is the pre-retrofit outlet.</p>");
-    let faults = runs.first().map_or(0, |(_, m)| m.faults.len());
-    let _ = write!(h, "<p>Faults injected: {faults}.</p>");
+    let faults: &[crate::sim::Fault] = runs.first().map_or(&[], |(_, m)| &m.faults);
+    let _ = write!(h, "<p>Faults injected: {}.</p>", faults.len());
+    if !faults.is_empty() {
+        h.push_str(
+            "<table><tr><th>target</th><th>fault</th><th>from (s)</th><th>until (s)</th></tr>",
+        );
+        for f in faults {
+            let _ = write!(
+                h,
+                "<tr><td>{:?}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+                f.target,
+                esc(&format!("{:?}", f.kind)),
+                f.at_s,
+                f.until_s
+                    .map_or("end of run".to_string(), |u| u.to_string())
+            );
+        }
+        h.push_str("</table>");
+    }
     for (_, m) in runs.iter().filter(|(_, m)| !m.events.is_empty()) {
         let _ = write!(
             h,

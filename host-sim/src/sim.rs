@@ -170,6 +170,36 @@ impl Fault {
         t >= self.at_s && self.until_s.is_none_or(|u| t < u)
     }
 
+    /// Refuses a fault the models cannot carry out, so no scripted fault is listed as
+    /// injected while doing nothing: a window that ends before it starts, a stall of
+    /// anything but the gate, a drift or offset of the rain gauge (it counts whole tips;
+    /// stuck and dropout stop them), or a drift or offset that is not a finite number.
+    pub fn check(&self) -> Result<(), String> {
+        let what = format!("fault {:?} {:?} at {} s", self.target, self.kind, self.at_s);
+        if let Some(u) = self.until_s
+            && u <= self.at_s
+        {
+            return Err(format!("{what}: until_s = {u} must be after at_s"));
+        }
+        match (self.target, self.kind) {
+            (FaultTarget::Stage | FaultTarget::Rain, FaultKind::Stall) => Err(format!(
+                "{what}: only the gate can stall (stage and rain take stuck, dropout{})",
+                if self.target == FaultTarget::Stage {
+                    ", drift=R or offset=B"
+                } else {
+                    ""
+                }
+            )),
+            (FaultTarget::Rain, FaultKind::Drift { .. } | FaultKind::Offset { .. }) => Err(
+                format!("{what}: the rain gauge counts whole tips; use rain:stuck or rain:dropout"),
+            ),
+            (_, FaultKind::Drift { per_h: x } | FaultKind::Offset { by: x }) if !x.is_finite() => {
+                Err(format!("{what}: {x} must be a finite number"))
+            }
+            _ => Ok(()),
+        }
+    }
+
     /// Parses `TARGET:KIND@START[-END]`, KIND one of `stuck`, `dropout`, `stall`,
     /// `drift=RATE_PER_H`, `offset=BY`; times in s.
     pub fn parse(s: &str) -> Result<Fault, String> {
@@ -200,12 +230,14 @@ impl Fault {
             Some((a, b)) => (secs(a)?, Some(secs(b)?)),
             None => (secs(when)?, None),
         };
-        Ok(Fault {
+        let f = Fault {
             at_s,
             until_s,
             target,
             kind,
-        })
+        };
+        f.check().map_err(|e| format!("--fault {s:?}: {e}"))?;
+        Ok(f)
     }
 }
 
@@ -225,6 +257,27 @@ pub struct Models {
     pub gate_backlash_m: f64,
     /// Gate position sensor quantum, m.
     pub position_quantum_m: f64,
+}
+
+impl Models {
+    /// Refuses settings the models cannot use: every value must be finite and not negative
+    /// (a zero noise, quantum, lag or backlash switches that effect off; a zero gate speed
+    /// is an ideal actuator).
+    pub fn check(&self) -> Result<(), String> {
+        for (field, v) in [
+            ("models.stage_noise_m", self.stage_noise_m),
+            ("models.stage_quantum_m", self.stage_quantum_m),
+            ("models.stage_lag_s", self.stage_lag_s),
+            ("models.gate_speed_m_s", self.gate_speed_m_s),
+            ("models.gate_backlash_m", self.gate_backlash_m),
+            ("models.position_quantum_m", self.position_quantum_m),
+        ] {
+            if !(v.is_finite() && v >= 0.0) {
+                return Err(format!("{field} = {v}: must be a finite number >= 0"));
+            }
+        }
+        Ok(())
+    }
 }
 
 impl Default for Models {
@@ -952,4 +1005,44 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         }
     }
     r
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A scripted fault the models cannot carry out is refused with its reason, so a summary
+    /// never lists as injected a fault that did nothing; the ones they can carry out parse.
+    #[test]
+    fn faults_that_would_do_nothing_are_refused() {
+        for ok in [
+            "stage:stuck@10",
+            "stage:drift=0.5@0-600",
+            "gate:stall@60",
+            "rain:dropout@0",
+        ] {
+            assert!(Fault::parse(ok).is_ok(), "{ok}");
+        }
+        for (bad, why) in [
+            ("stage:stall@0", "only the gate can stall"),
+            ("rain:stall@0", "only the gate can stall"),
+            ("rain:drift=5@0", "whole tips"),
+            ("rain:offset=3@0", "whole tips"),
+            ("stage:stuck@2400-1200", "must be after at_s"),
+            ("stage:offset=inf@0", "finite"),
+        ] {
+            let e = Fault::parse(bad).unwrap_err();
+            assert!(e.contains(why), "{bad}: {e}");
+        }
+        let m = Models {
+            stage_noise_m: -0.01,
+            ..Models::default()
+        };
+        assert!(
+            m.check()
+                .unwrap_err()
+                .contains("models.stage_noise_m = -0.01")
+        );
+        assert!(Models::default().check().is_ok());
+    }
 }

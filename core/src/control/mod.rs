@@ -272,7 +272,8 @@ impl Alarms {
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum Reason {
-    /// At or below the normal level: the gate holds the normal pool.
+    /// At or below the normal level: the gate holds the normal pool (in Standby the gate
+    /// is also kept where it is inside the normal band, never opened further).
     Rest,
     /// The rating's opening for the permit target.
     PermitFollowing,
@@ -1093,6 +1094,13 @@ impl Controller {
             Mode::Standby | Mode::Capture | Mode::Drawdown => {
                 if h <= normal_m {
                     (0.0, 0.0, Reason::Rest, false)
+                } else if self.mode == Mode::Standby {
+                    // Dry weather inside the normal band (and its hysteresis): the gate is
+                    // never opened further here, only closed once the stage is back at
+                    // normal, so sensor noise about the normal level does not work it open
+                    // and shut; water above the band is Drawdown's.
+                    let a = self.act.goal_m();
+                    (a, outlet.discharge_m3s(h, a), Reason::Rest, false)
                 } else {
                     let (t, paced) = if self.mode == Mode::Drawdown {
                         self.drawdown_target_m3s(cfg, now_s, storage_m3.unwrap_or(0.0))
