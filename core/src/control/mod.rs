@@ -55,7 +55,7 @@
 //!
 //! | mode | entered when | left when | opening |
 //! |---|---|---|---|
-//! | Standby | at the normal level with no rain | rain counted → Capture; stage above the normal band by more than [`standby_hysteresis_m`] without rain → Drawdown | closed at or below normal, permit target above |
+//! | Standby | at the normal level with no rain | rain counted → Capture; stage above the normal band by more than [`standby_hysteresis_m`] without rain → Drawdown | closed at or below normal; above it the gate stays where it is (never opened further, so noise about normal does not work it) |
 //! | Capture | rain counted | no rain for `inter_event_s`, or no rain for [`QUIET_S`] and the forecast brings < 1 % of the stored volume → Drawdown | permit target (closed at or below normal) |
 //! | Drawdown | the storm is over | back within [`NORMAL_BAND_M`] of normal → Standby; rain → Capture | paced release (see 4) |
 //! | Surcharge | forecast at the permit target over crest − freeboard (within [`SURCHARGE_LEAD_S`]) or the crest, with waiting unable to hold it; or the stage over crest − freeboard | holding the permit holds over the whole horizon again and the stage is under the limit → automatic mode | cap from `release_to_hold`, full open if infeasible; moves are urgent |
