@@ -650,6 +650,9 @@ pub struct Run {
     pub time_in_mode_s: std::collections::BTreeMap<&'static str, u64>,
     /// The controller's forecasts next to what happened (see [`RunOptions::forecast_at_s`]).
     pub forecast_checks: Vec<ForecastCheck>,
+    /// The run reached its length limit (`tail_s` after the rain) while runoff was still on
+    /// its way: the peak may be later than the run, so the peak criteria cannot pass.
+    pub cut_short: bool,
 }
 
 /// Backlash (dead travel on reversal) between the drive and the gate leaf, as a play
@@ -789,6 +792,7 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         events: Vec::new(),
         time_in_mode_s: Default::default(),
         forecast_checks: Vec::new(),
+        cut_short: false,
     };
     let record = opt.record_s.max(dt);
     let forecast_at: Vec<u32> = opt.forecast_at_s.iter().map(|t| t / dt * dt).collect();
@@ -989,7 +993,11 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         }
         let pending = t64 < runoff_done_s;
         let done_rain = t64 >= rain_end;
-        if (done_rain && drained && !pending) || t64 >= total_s {
+        if done_rain && drained && !pending {
+            break;
+        }
+        if t64 >= total_s {
+            r.cut_short = pending;
             break;
         }
     }

@@ -104,27 +104,38 @@ pub fn summarise(
     let limit = cfg.stage_limit_m() as f64;
     let permit = cfg.permit().release_m3s as f64;
     let target = cfg.control().drawdown_target_s as u64;
+    // A run cut short while runoff was still arriving is not judged on its peaks: each peak
+    // criterion then fails and says why, so a truncated run never reads as a pass.
+    let cut = if run.cut_short {
+        format!(
+            "; NOT JUDGED: the run ended at {:.1} h while runoff was still arriving (lengthen --tail-h)",
+            run.length_s as f64 / 3600.0
+        )
+    } else {
+        String::new()
+    };
+    let whole = !run.cut_short;
     let mut criteria = vec![
         Criterion {
             id: "permit",
             rule: format!("release never above the permit {permit} m3/s"),
             measured: format!(
-                "peak {:.3} m3/s; {} s and {:.1} m3 above",
+                "peak {:.3} m3/s; {} s and {:.1} m3 above{cut}",
                 run.peak_release_m3s, run.time_over_permit_s, run.volume_over_permit_m3
             ),
-            pass: run.time_over_permit_s == 0,
+            pass: whole && run.time_over_permit_s == 0,
         },
         Criterion {
             id: "freeboard",
             rule: format!("peak stage at most crest - freeboard = {limit:.3} m"),
-            measured: format!("peak stage {:.3} m", run.peak_stage_m),
-            pass: run.peak_stage_m <= limit + 1e-4,
+            measured: format!("peak stage {:.3} m{cut}", run.peak_stage_m),
+            pass: whole && run.peak_stage_m <= limit + 1e-4,
         },
         Criterion {
             id: "overtopping",
             rule: format!("stage never above the crest {crest:.3} m"),
-            measured: format!("{} s above the crest", run.time_over_crest_s),
-            pass: run.time_over_crest_s == 0,
+            measured: format!("{} s above the crest{cut}", run.time_over_crest_s),
+            pass: whole && run.time_over_crest_s == 0,
         },
     ];
     let drawdown_ok = match run.drawdown_s {

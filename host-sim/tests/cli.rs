@@ -432,3 +432,40 @@ fn batch_runs_in_parallel_and_fails_when_a_run_fails() {
     let any_fail = c.lines().skip(1).any(|l| l.ends_with(",false"));
     assert_eq!(o.status.code(), Some(if any_fail { 1 } else { 0 }));
 }
+
+/// A replay cut short by `--tail-h` while runoff is still arriving never reads as a pass:
+/// its peak criteria fail and say "NOT JUDGED" (before, the permit and freeboard criteria
+/// showed "pass" on a run that ended before the peak), and the exit code says it failed.
+#[test]
+fn a_run_cut_short_before_the_runoff_has_arrived_is_not_judged_a_pass() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let out = dir.path().join("out");
+    let o = run(&[
+        "replay",
+        p.to_str().unwrap(),
+        "--design",
+        "10:60:chicago",
+        "--policy",
+        "controller",
+        "--tail-h",
+        "0.01",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
+    let s: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(out.join("summary-controller.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(s["pass"], false);
+    for c in s["criteria"].as_array().unwrap() {
+        if ["permit", "freeboard", "overtopping"].contains(&c["id"].as_str().unwrap()) {
+            assert_eq!(c["pass"], false, "{c}");
+            assert!(
+                c["measured"].as_str().unwrap().contains("NOT JUDGED"),
+                "{c}"
+            );
+        }
+    }
+}
