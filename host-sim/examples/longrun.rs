@@ -77,6 +77,7 @@ fn main() {
         name: format!("DWD 01684 repeated to {years} years"),
         dt_s: 300,
         rain_mm: rain,
+        notes: Vec::new(),
     };
     eprintln!(
         "record: {} observed 5-min steps ({:.1} years, {:.0} mm), repeated to {} steps \

@@ -267,22 +267,15 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
                 eprintln!("holdback: wrote the demo pond file to {}", p.display());
                 return Ok(0);
             }
-            let pond = pondfile::load_str(DEMO_POND)
+            let mut pond = pondfile::load_str(DEMO_POND)
                 .map_err(|ps| bad(format!("the built-in demo pond does not load: {}", ps[0])))?;
+            add_storage_check(&mut pond, false);
             demo(&pond, &out)
         }
         Command::Check { pond, strict } => {
             let mut p = load(&pond)?;
             println!("{}: ok ({})", pond.display(), p.name);
-            match pondfile::storage_check(&p) {
-                Ok(c) => {
-                    println!("{}", c.line());
-                    if let Some(w) = c.warning() {
-                        p.warnings.push(w);
-                    }
-                }
-                Err(e) => p.warnings.push(format!("storage check not done: {e}")),
-            }
+            add_storage_check(&mut p, true);
             for w in &p.warnings {
                 eprintln!("holdback: warning: {w}");
             }
@@ -362,11 +355,15 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             sim,
             out,
         } => {
-            let p = load(&pond)?;
+            let mut p = load(&pond)?;
+            add_storage_check(&mut p, false);
             for w in &p.warnings {
                 eprintln!("holdback: warning: {w}");
             }
             let s = storm_from(&p, &storm)?;
+            for n in &s.notes {
+                eprintln!("holdback: warning: {n}");
+            }
             let opts = run_options(&p, &sim)?;
             let outcome = replay(&p, &s, &sim.policy, &opts, out.as_deref())?;
             Ok(outcome)
@@ -381,7 +378,11 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             sim,
             csv,
         } => {
-            let p = load(&pond)?;
+            let mut p = load(&pond)?;
+            add_storage_check(&mut p, false);
+            for w in &p.warnings {
+                eprintln!("holdback: warning: {w}");
+            }
             let opts = run_options(&p, &sim)?;
             let mut storms_list = Vec::new();
             for &t in &return_periods {
@@ -522,6 +523,24 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Storm, Fail> {
             rec.rain_mm[e.first_step..e.end_step].to_vec()
         }
     };
+    let mut notes = Vec::new();
+    if !rec.bad_rows.is_empty() {
+        notes.push(format!(
+            "{name}: {} rows left out (first: {})",
+            rec.bad_rows.len(),
+            rec.bad_rows
+                .first()
+                .map_or(String::new(), |b| b.to_string())
+        ));
+    }
+    if !rec.gaps.is_empty() {
+        let missing: i64 = rec.gaps.iter().map(|g| g.missing_s).sum();
+        notes.push(format!(
+            "{name}: {} gaps without data, {:.1} h in all, replayed as dry",
+            rec.gaps.len(),
+            missing as f64 / 3600.0
+        ));
+    }
     Ok(Storm {
         name: match a.event {
             Some(n) => format!("{name} event {n}"),
@@ -529,7 +548,25 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Storm, Fail> {
         },
         dt_s: rec.dt_s,
         rain_mm: rain,
+        notes,
     })
+}
+
+/// Adds the storage check's warning (storage the pond needs for the design storms against
+/// what it holds) to the pond's warnings, so every summary and report of a run carries it.
+/// Prints the check's line when `print` is set.
+fn add_storage_check(p: &mut Pond, print: bool) {
+    match pondfile::storage_check(p) {
+        Ok(c) => {
+            if print {
+                println!("{}", c.line());
+            }
+            if let Some(w) = c.warning() {
+                p.warnings.push(w);
+            }
+        }
+        Err(e) => p.warnings.push(format!("storage check not done: {e}")),
+    }
 }
 
 fn run_options(p: &Pond, a: &SimArgs) -> Result<RunOptions, Fail> {
@@ -626,6 +663,9 @@ fn replay(
 
 fn demo(p: &Pond, out: &Path) -> Result<u8, Fail> {
     println!("# {}", p.name);
+    for w in &p.warnings {
+        eprintln!("holdback: warning: {w}");
+    }
     println!("# rating: stage, storage and discharge (gate closed, half, fully open)");
     print!("{}", report::rating_table(p, None, 0.25));
     let storm = storms::design(p, 10.0, 60, 300, Shape::Chicago, 0.5).map_err(bad)?;

@@ -503,6 +503,14 @@ pub fn html(p: &Pond, storm: &Storm, runs: &[(Run, Summary)], svg: &str) -> Stri
             "FAILS at least one criterion"
         }
     );
+    let warnings: &[String] = judged.map_or(&[], |(_, m)| &m.warnings);
+    if !warnings.is_empty() {
+        h.push_str("<h2>Warnings</h2><ul class=\"caution\">");
+        for w in warnings {
+            let _ = write!(h, "<li>{}</li>", esc(w));
+        }
+        h.push_str("</ul>");
+    }
     let _ = write!(
         h,
         "<h2>Pond</h2><table><tr><th>normal level</th><td>{:.3} m</td></tr><tr><th>spillway \

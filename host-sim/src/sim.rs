@@ -53,6 +53,10 @@ pub struct Storm {
     pub dt_s: u32,
     /// Depth per step, mm.
     pub rain_mm: Vec<f64>,
+    /// What a reviewer must know about how the storm was made (rain-file rows left out,
+    /// gaps read as dry, an IDF read beyond its declared range); carried into every summary
+    /// and report of a run on it.
+    pub notes: Vec<String>,
 }
 
 impl Storm {

@@ -54,6 +54,31 @@ pub fn design(
         .fill(pond.config.idf(), pattern, &mut buf)
         .map_err(|e| format!("design storm: {e}"))?;
     buf.truncate(n);
+    let mut notes = Vec::new();
+    let idf = pond.config.idf();
+    let periods = holdback_core::rain::Idf::return_periods_years(idf);
+    if let (Some(&lo), Some(&hi)) = (periods.first(), periods.last())
+        && !(lo..=hi).contains(&return_period_yr)
+    {
+        notes.push(format!(
+            "the {return_period_yr}-year storm is extrapolated beyond the IDF's return periods \
+             ({lo} to {hi} years)"
+        ));
+    }
+    let (d_lo, d_hi) = match idf {
+        holdback_core::config::IdfModel::Curves(c) => c.duration_range_min(),
+        holdback_core::config::IdfModel::Table(t) => (
+            t.durations_min().first().copied().unwrap_or(0.0),
+            t.durations_min().last().copied().unwrap_or(f32::INFINITY),
+        ),
+    };
+    let step_min = dt_s as f32 / 60.0;
+    if (duration_min as f32) > d_hi || step_min < d_lo {
+        notes.push(format!(
+            "the IDF is declared for {d_lo} to {d_hi} min; this storm reads it at {step_min} to \
+             {duration_min} min, beyond that range (extrapolated)"
+        ));
+    }
     Ok(Storm {
         name: format!(
             "{}-yr {} min {} (dt {} s)",
@@ -64,6 +89,7 @@ pub fn design(
         ),
         dt_s,
         rain_mm: buf.into_iter().map(f64::from).collect(),
+        notes,
     })
 }
 

@@ -71,6 +71,10 @@ pub struct Summary {
     pub bound_peak_storage_m3: Option<f64>,
     /// Peak storage / bound's (1.00 is the limit; null when not computed).
     pub storage_ratio_to_bound: Option<f64>,
+    /// What a reviewer must know besides the criteria: the pond file's warnings (the
+    /// storage check among them) and how the storm was made (rain-file rows left out, gaps,
+    /// IDF extrapolation). Added in schema 1.
+    pub warnings: Vec<String>,
     /// Verdicts.
     pub criteria: Vec<Criterion>,
     /// All criteria passed.
@@ -181,6 +185,12 @@ pub fn summarise(
         faults: faults.to_vec(),
         bound_peak_storage_m3: bound_peak.map(|b| round(b, 1)),
         storage_ratio_to_bound: bound_peak.and_then(|b| (b > 0.0).then(|| round(own / b, 3))),
+        warnings: pond
+            .warnings
+            .iter()
+            .chain(storm.notes.iter())
+            .cloned()
+            .collect(),
         criteria,
         pass,
         time_in_mode_s: run.time_in_mode_s.clone(),

@@ -469,3 +469,45 @@ fn a_run_cut_short_before_the_runoff_has_arrived_is_not_judged_a_pass() {
         }
     }
 }
+
+/// What a reviewer must know besides the criteria reaches the summary, not only stderr: the
+/// storage check's warning (the demo pond is short of storage for its 10-year, 160-min
+/// storm) and a design storm read beyond the IDF's declared return periods.
+#[test]
+fn storage_and_extrapolation_warnings_reach_the_summary() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let out = dir.path().join("out");
+    let o = run(&[
+        "replay",
+        p.to_str().unwrap(),
+        "--design",
+        "500:60:chicago",
+        "--policy",
+        "bound",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(
+        matches!(o.status.code(), Some(0 | 1)),
+        "{}",
+        text(&o.stderr)
+    );
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary-bound.json")).unwrap())
+            .unwrap();
+    let w: Vec<&str> = s["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_str().unwrap())
+        .collect();
+    assert!(w.iter().any(|x| x.starts_with("storage: ")), "{w:?}");
+    assert!(
+        w.iter()
+            .any(|x| x.contains("500-year storm is extrapolated")),
+        "{w:?}"
+    );
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert!(html.contains("<h2>Warnings</h2>") && html.contains("extrapolated"));
+}
