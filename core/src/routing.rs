@@ -198,6 +198,30 @@ fn point(pond: &StageStorage, outlet: &impl StageDischarge, s: f32) -> Point {
     }
 }
 
+/// A lower end for the solve of `r(S) = S + w·O(S) − rhs = 0` much closer to the root than
+/// the empty pond: `S_lo = rhs − w·O(hi)`. With a non-decreasing outlet and `S_lo ≤ hi`,
+/// `r(S_lo) = w·(O(S_lo) − O(hi)) ≤ 0`, so `[S_lo, hi]` still brackets the root; its width
+/// is `w·(O(hi) − O(root))`, the change in release over the step, usually a small part of
+/// the storage. One storage lookup for a bracket that false position closes in a few
+/// steps. Falls back to `empty` when `S_lo` is not inside `(empty, hi)` or f32 rounding
+/// leaves its residual positive (an outlet against the contract, or a bracket already at
+/// rounding level).
+fn lower_bound(
+    pond: &StageStorage,
+    outlet: &impl StageDischarge,
+    w: f32,
+    rhs: f32,
+    empty: Point,
+    hi: Point,
+) -> Point {
+    let s = rhs - w * hi.q;
+    if !(s > empty.s && s < hi.s) {
+        return empty;
+    }
+    let p = point(pond, outlet, s);
+    if p.s + w * p.q - rhs <= 0.0 { p } else { empty }
+}
+
 /// Solve `r(S) = S + w·O(S) − rhs = 0` on `[lo, hi]` (`lo` the empty pond), where
 /// `r(lo) < 0 ≤ r(hi)` is assumed by the caller. Bracketing false position with the Illinois
 /// modification, safeguarded by bisection: a trial point outside the bracket, or a bracket
@@ -344,7 +368,8 @@ pub fn step_known(
     let half = 0.5 * dt;
     let rhs_tr = avail - half * o0;
     if rhs_tr.is_finite() && half * o_empty < rhs_tr {
-        let p1 = bisect(pond, outlet, half, rhs_tr, p_empty, p_avail);
+        let p_lo = lower_bound(pond, outlet, half, rhs_tr, p_empty, p_avail);
+        let p1 = bisect(pond, outlet, half, rhs_tr, p_lo, p_avail);
         let (s1, o1) = (p1.s, p1.q);
         let ds = s1 - s0;
         let stiff = if ds != 0.0 { dt * (o1 - o0) / ds } else { 0.0 };
@@ -359,8 +384,9 @@ pub fn step_known(
         Some(c) => c,
         None => {
             if dt * o_empty < avail {
+                let p_lo = lower_bound(pond, outlet, dt, avail, p_empty, p_avail);
                 (
-                    bisect(pond, outlet, dt, avail, p_empty, p_avail),
+                    bisect(pond, outlet, dt, avail, p_lo, p_avail),
                     Scheme::BackwardEuler,
                 )
             } else {

@@ -284,3 +284,35 @@ fn gate_underflow_conserves_energy_and_peaks_at_critical_flow() {
         assert!((q_cd / g.discharge_m3s(h, a, None) as f64 - 1.0).abs() < 1e-5);
     }
 }
+
+/// Shallow flow in a circular orifice: at depths from 1e-5 to 0.5 of the diameter the f32
+/// wetted-area law keeps f32 precision (the direct `θ − sin θ` cancels at small θ, which is
+/// why core takes it from its Taylor series there). Source: the f64 reference segment area
+/// `r²·acos((r − y)/r) − (r − y)·√(2ry − y²)`, whose cancellation at these depths is far
+/// below f32 resolution.
+#[test]
+fn circular_orifice_keeps_precision_at_shallow_depths() {
+    let (inv, d, cd) = (41.0_f32, 0.1_f32, 0.6_f32);
+    let c = CircularOrifice::new(inv, d, cd).unwrap();
+    let mut worst = 0.0_f64;
+    for k in 0..=300 {
+        // y/D from 1e-5 to 0.5, evenly in its logarithm.
+        let u = 10f64.powf(-5.0 + 4.699 * k as f64 / 300.0);
+        // The stage as f32, and the depth the core actually sees from it.
+        let s = inv + (u * d as f64) as f32;
+        let y = s as f64 - inv as f64;
+        if y <= 0.0 {
+            continue;
+        }
+        let want = r64::circular_orifice(inv as f64, d as f64, cd as f64, s as f64, None);
+        let got = c.discharge_m3s(s, None) as f64;
+        let rel = (got - want).abs() / want;
+        assert!(
+            rel < 2e-5,
+            "y/D = {:e}: core {got:e} vs f64 {want:e}",
+            y / d as f64
+        );
+        worst = worst.max(rel);
+    }
+    println!("shallow circular orifice: worst relative error {worst:e}");
+}

@@ -112,14 +112,31 @@ impl CircularOrifice {
         self.area_m2
     }
 
-    /// Wetted area of the circle at depth `y` (0 < y < D): segment `r²/2·(θ − sin θ)`,
-    /// `θ = 2·acos(1 − 2y/D)`.
+    /// Wetted area of the circle at depth `y` (0 < y < D): segment `D²/8·(θ − sin θ)`.
+    ///
+    /// With `u = y/D`, the angle is `θ = 4·asin(√u) = 4·atan(√(u/(1 − u)))` and
+    /// `sin θ = 4·(1 − 2u)·√(u(1 − u))` (double-angle identities), so one f32 arc tangent and
+    /// square roots replace `acos` and `sin` (libm's `asinf` takes an f64 square root, which
+    /// costs the device a software double routine). Below `θ = 1` the difference `θ − sin θ` is taken from its Taylor series to the
+    /// `θ¹³` term (truncation under 1e-12 relative there), which keeps full f32 precision at
+    /// the shallow depths where the direct difference cancels.
     #[inline]
     fn wetted_area_m2(&self, y: f32) -> f32 {
         let d = self.diameter_m;
-        let c = math::clamp(1.0 - 2.0 * y / d, -1.0, 1.0);
-        let theta = 2.0 * math::acos(c);
-        let a = 0.125 * d * d * (theta - math::sin(theta));
+        let u = math::clamp(y / d, 0.0, 1.0);
+        let theta = 4.0 * math::atan(math::sqrt(u / (1.0 - u)));
+        let excess = if theta < 1.0 {
+            let t2 = theta * theta;
+            let series = 1.0 / 6.0
+                - t2 * (1.0 / 120.0
+                    - t2 * (1.0 / 5_040.0
+                        - t2 * (1.0 / 362_880.0
+                            - t2 * (1.0 / 39_916_800.0 - t2 * (1.0 / 6_227_020_800.0)))));
+            theta * t2 * series
+        } else {
+            theta - 4.0 * (1.0 - 2.0 * u) * math::sqrt(u * (1.0 - u))
+        };
+        let a = 0.125 * d * d * excess;
         math::clamp(a, 0.0, self.area_m2)
     }
 
