@@ -48,9 +48,13 @@ enum Command {
         /// Write the CSV, JSON, plots and HTML report into this folder.
         #[arg(long, default_value = "holdback-demo")]
         out: PathBuf,
-        /// Write the demo pond file here (to copy and edit) and stop.
+        /// Write the demo pond file here (to copy and edit) and stop; an existing file is
+        /// left alone unless --force is given.
         #[arg(long)]
         write_pond: Option<PathBuf>,
+        /// With --write-pond: replace an existing file.
+        #[arg(long, requires = "write_pond")]
+        force: bool,
     },
     /// Validate a pond file: errors (with their path in the file) and warnings.
     Check {
@@ -67,7 +71,8 @@ enum Command {
         /// Gate opening, m (default: closed, half and fully open).
         #[arg(long)]
         opening: Option<f32>,
-        /// Stage step of the table, m.
+        /// Stage step of the table, m (at least 0.001; the table runs from the pond floor to
+        /// 0.5 m over the spillway crest).
         #[arg(long, default_value_t = 0.1)]
         step: f32,
     },
@@ -103,7 +108,8 @@ enum Command {
         #[arg(long)]
         out: Option<PathBuf>,
     },
-    /// Many design storms × seeds in parallel; a summary table; exit 1 if any run fails.
+    /// Many design storms × policies × seeds in parallel; a summary table; exit 1 if any run
+    /// of the controller fails a criterion (of any policy run, when the controller is not).
     Batch {
         /// The pond file (TOML).
         pond: PathBuf,
@@ -116,7 +122,7 @@ enum Command {
         /// Shapes.
         #[arg(long, value_delimiter = ',', value_enum, default_values = ["chicago"])]
         shapes: Vec<Shape>,
-        /// Number of seeds per storm (1, 2, …).
+        /// Number of seeds per storm and policy: --seed, --seed + 1, … (at least 1).
         #[arg(long, default_value_t = 1)]
         seeds: u64,
         /// Step of the design storms, s.
@@ -157,7 +163,7 @@ struct StormArgs {
     /// A design storm instead: RETURN_PERIOD_YR:DURATION_MIN:SHAPE (e.g. 10:60:chicago).
     #[arg(long)]
     design: Option<String>,
-    /// What the rows hold.
+    /// What the rows hold (for tips, each tip is the pond file's sensors.gauge.bucket_mm).
     #[arg(long, value_enum, default_value_t = RainKind::Interval)]
     kind: RainKind,
     /// Time column: header name or 1-based number.
@@ -184,12 +190,18 @@ struct StormArgs {
     /// Bad rows and gaps are errors (exit 2) instead of warnings.
     #[arg(long)]
     strict: bool,
-    /// Split the record into events by this dry time, s, and replay event N (from 1).
+    /// Replay only event N (numbered from 1) of the recorded rain, the events being split by
+    /// --inter-event-s of dry time; the replay starts from the normal level.
     #[arg(long)]
     event: Option<usize>,
     /// Dry time that separates events, s (default: the pond's control.inter_event_s).
     #[arg(long)]
     inter_event_s: Option<u32>,
+    /// Print the recorded rain's events as CSV to stdout (number, start, end, duration,
+    /// depth, dry time before; gaps without data count as dry, as they are replayed) and
+    /// stop without replaying.
+    #[arg(long, conflicts_with = "event")]
+    list_events: bool,
 }
 
 #[derive(Args, Clone)]
@@ -260,8 +272,18 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             Ok(_) => Ok(2),
             Err(e) => Err(bad(e.to_string())),
         },
-        Command::Demo { out, write_pond } => {
+        Command::Demo {
+            out,
+            write_pond,
+            force,
+        } => {
             if let Some(p) = write_pond {
+                if p.exists() && !force {
+                    return Err(bad(format!(
+                        "--write-pond: {} already exists; left as it is (give --force to replace it)",
+                        p.display()
+                    )));
+                }
                 std::fs::write(&p, DEMO_POND)
                     .map_err(|e| bad(format!("cannot write {}: {e}", p.display())))?;
                 eprintln!("holdback: wrote the demo pond file to {}", p.display());
@@ -291,8 +313,17 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             step,
         } => {
             let p = load(&pond)?;
-            if !(step.is_finite() && step > 0.0) {
-                return Err(bad(format!("--step = {step}: must be > 0")));
+            if !(step.is_finite() && step >= 0.001) {
+                return Err(bad(format!(
+                    "--step = {step}: must be at least 0.001 m (the table prints stages to the millimetre)"
+                )));
+            }
+            let span = p.config.levels().crest_m + 0.5 - p.config.storage().floor_m();
+            if span / step > 100_000.0 {
+                return Err(bad(format!(
+                    "--step = {step}: gives {:.0} rows from the floor to 0.5 m over the crest; at most 100000",
+                    (span / step).ceil()
+                )));
             }
             if let Some(a) = opening {
                 let max = p.config.outlet().max_opening_m();
@@ -360,7 +391,9 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             for w in &p.warnings {
                 eprintln!("holdback: warning: {w}");
             }
-            let s = storm_from(&p, &storm)?;
+            let Some(s) = storm_from(&p, &storm)? else {
+                return Ok(0);
+            };
             for n in &s.notes {
                 eprintln!("holdback: warning: {n}");
             }
@@ -392,24 +425,34 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
                     }
                 }
             }
-            let policy = sim
-                .policy
-                .first()
-                .copied()
-                .unwrap_or(PolicyKind::Controller);
-            let rows = batch::run(&p, &storms_list, policy, seeds.max(1), &opts);
+            if sim.policy.is_empty() {
+                return Err(bad("--policy: name at least one policy to run"));
+            }
+            let rows = batch::run(&p, &storms_list, &sim.policy, sim.seed, seeds.max(1), &opts);
             let table = batch::table(&rows);
             print!("{table}");
             if let Some(c) = csv {
                 std::fs::write(&c, batch::csv(&rows))
                     .map_err(|e| bad(format!("cannot write {}: {e}", c.display())))?;
             }
-            let failed = rows.iter().filter(|r| !r.pass).count();
+            let judged = batch::judged(&sim.policy);
+            let counted: Vec<&batch::BatchRow> = rows
+                .iter()
+                .filter(|r| judged.is_none_or(|j| r.summary.policy == j.name()))
+                .collect();
+            let failed = counted.iter().filter(|r| !r.pass).count();
+            let baseline_failed = rows.iter().filter(|r| !r.pass).count() - failed;
             eprintln!(
-                "holdback: {} runs, {} failed a criterion (policy {})",
+                "holdback: {} runs; {} of {} {} failed a criterion{}",
                 rows.len(),
                 failed,
-                policy.name()
+                counted.len(),
+                judged.map_or("runs".to_string(), |j| format!("{} runs", j.name())),
+                if judged.is_some() && baseline_failed > 0 {
+                    format!(" (and {baseline_failed} baseline runs, shown for comparison)")
+                } else {
+                    String::new()
+                }
             );
             Ok(if failed > 0 { 1 } else { 0 })
         }
@@ -428,7 +471,9 @@ fn design_storm(p: &Pond, d: &DesignArgs) -> Result<Storm, Fail> {
     .map_err(bad)
 }
 
-fn storm_from(p: &Pond, a: &StormArgs) -> Result<Storm, Fail> {
+/// The storm to replay, or `None` when `--list-events` asked only for the record's events
+/// (printed to stdout).
+fn storm_from(p: &Pond, a: &StormArgs) -> Result<Option<Storm>, Fail> {
     if let Some(spec) = &a.design {
         let parts: Vec<&str> = spec.split(':').collect();
         let [t, d, shape] = parts[..] else {
@@ -451,7 +496,14 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Storm, Fail> {
                 "--design {spec:?}: shape must be uniform, alternating-block or chicago"
             ))
         })?;
-        return storms::design(p, t, d, a.interval_s.min(d * 60).max(1), shape, 0.5).map_err(bad);
+        if a.list_events {
+            return Err(bad(
+                "--list-events: only a recorded rain file (--rain) has events",
+            ));
+        }
+        return storms::design(p, t, d, a.interval_s.min(d * 60).max(1), shape, 0.5)
+            .map(Some)
+            .map_err(bad);
     }
     let Some(path) = &a.rain else {
         return Err(bad("give --rain FILE.csv or --design T:D:SHAPE"));
@@ -498,32 +550,68 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Storm, Fail> {
     );
     let inter = a.inter_event_s.unwrap_or(p.config.control().inter_event_s);
     let events = rainfile::split_events(&rec, inter);
-    for (i, e) in events.iter().enumerate() {
+    let at = |step: usize| rec.start_s + (step as i64) * i64::from(rec.dt_s);
+    let clock = |step: usize| rainfile::clock_text(at(step), a.time_format);
+    // Dry time before each event (None for the first: the record says nothing before it).
+    let dry_before_s = |i: usize| -> Option<i64> {
+        let e = events.get(i)?;
+        let prev = events.get(i.checked_sub(1)?)?;
+        Some((e.first_step - prev.end_step) as i64 * i64::from(rec.dt_s))
+    };
+    if a.list_events {
+        println!("event,start,end,duration_h,depth_mm,dry_before_h");
+        for (i, e) in events.iter().enumerate() {
+            println!(
+                "{},{},{},{:.2},{:.2},{}",
+                i + 1,
+                clock(e.first_step),
+                clock(e.end_step),
+                (e.end_step - e.first_step) as f64 * rec.dt_s as f64 / 3600.0,
+                e.depth_mm,
+                dry_before_s(i).map_or(String::new(), |d| format!("{:.2}", d as f64 / 3600.0))
+            );
+        }
         eprintln!(
-            "holdback: event {}: steps {}..{} ({:.1} h), {:.2} mm",
-            i + 1,
-            e.first_step,
-            e.end_step,
-            (e.end_step - e.first_step) as f64 * rec.dt_s as f64 / 3600.0,
-            e.depth_mm
+            "holdback: {name}: {} events (separated by at least {inter} s without rain)",
+            events.len()
         );
+        return Ok(None);
     }
+    eprintln!(
+        "holdback: {name}: {} events (separated by at least {inter} s without rain; list them with --list-events, replay one with --event N)",
+        events.len()
+    );
+    let mut notes = Vec::new();
     let rain = match a.event {
         None => rec.rain_mm.clone(),
         Some(n) => {
-            let e = n
+            let i = n
                 .checked_sub(1)
-                .and_then(|i| events.get(i))
+                .filter(|&i| i < events.len())
                 .ok_or_else(|| {
                     bad(format!(
-                        "--event {n}: the record has {} events",
+                        "--event {n}: the record has {} events (numbered from 1)",
                         events.len()
                     ))
                 })?;
+            let e = &events[i];
+            eprintln!(
+                "holdback: event {n}: {} to {}, {:.2} mm",
+                clock(e.first_step),
+                clock(e.end_step),
+                e.depth_mm
+            );
+            let drawdown_s = i64::from(p.config.control().drawdown_target_s);
+            if let Some(d) = dry_before_s(i).filter(|&d| d < drawdown_s) {
+                notes.push(format!(
+                    "event {n} is replayed from the normal level, but the event before it ended only {:.1} h earlier, less than the {:.1} h drawdown target: the pond may not have been empty when it began (replay the whole record to carry the water over)",
+                    d as f64 / 3600.0,
+                    drawdown_s as f64 / 3600.0
+                ));
+            }
             rec.rain_mm[e.first_step..e.end_step].to_vec()
         }
     };
-    let mut notes = Vec::new();
     if !rec.bad_rows.is_empty() {
         notes.push(format!(
             "{name}: {} rows left out (first: {})",
@@ -541,7 +629,7 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Storm, Fail> {
             missing as f64 / 3600.0
         ));
     }
-    Ok(Storm {
+    Ok(Some(Storm {
         name: match a.event {
             Some(n) => format!("{name} event {n}"),
             None => name,
@@ -549,7 +637,7 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Storm, Fail> {
         dt_s: rec.dt_s,
         rain_mm: rain,
         notes,
-    })
+    }))
 }
 
 /// Adds the storage check's warning (storage the pond needs for the design storms against

@@ -147,6 +147,38 @@ pub fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
     era * 146_097 + doe - 719_468
 }
 
+/// The proleptic Gregorian date of a day count from 1970-01-01 (H. Hinnant's
+/// `civil_from_days`, the inverse of [`days_from_civil`]).
+pub fn civil_from_days(z: i64) -> (i64, i64, i64) {
+    let z = z + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    (yoe + era * 400 + i64::from(m <= 2), m, d)
+}
+
+/// A time on the file's clock written the way the file writes it: `YYYY-MM-DD HH:MM` for
+/// calendar stamps, seconds or minutes otherwise.
+pub fn clock_text(t_s: i64, format: TimeFormat) -> String {
+    match format {
+        TimeFormat::Iso => {
+            let (y, m, d) = civil_from_days(t_s.div_euclid(86_400));
+            let sod = t_s.rem_euclid(86_400);
+            format!(
+                "{y:04}-{m:02}-{d:02} {:02}:{:02}",
+                sod / 3600,
+                sod % 3600 / 60
+            )
+        }
+        TimeFormat::S => format!("{t_s} s"),
+        TimeFormat::Min => format!("{} min", t_s as f64 / 60.0),
+    }
+}
+
 /// Seconds since 1970-01-01T00:00 of an ISO-like stamp.
 pub fn parse_iso(s: &str) -> Result<i64, String> {
     let s = s.trim().trim_end_matches('Z');
@@ -469,6 +501,22 @@ mod tests {
         assert_eq!(parse_iso("1970-01-01 00:00").unwrap(), 0);
         assert_eq!(parse_iso("2000-03-01T00:00:10Z").unwrap(), 951_868_810);
         assert!(parse_iso("2000-13-01 00:00").is_err());
+    }
+
+    /// Event times are printed back on the file's calendar: `civil_from_days` inverts
+    /// `days_from_civil` over 1600–2400 (leap centuries included), and 951 868 810 s is
+    /// 2000-03-01 00:00 (the Python 3 value of the test above).
+    #[test]
+    fn clock_text_inverts_the_calendar() {
+        for z in days_from_civil(1600, 1, 1)..days_from_civil(2400, 12, 31) {
+            let (y, m, d) = civil_from_days(z);
+            assert_eq!(days_from_civil(y, m, d), z);
+        }
+        assert_eq!(civil_from_days(days_from_civil(2000, 2, 29)), (2000, 2, 29));
+        assert_eq!(clock_text(951_868_810, TimeFormat::Iso), "2000-03-01 00:00");
+        assert_eq!(clock_text(-60, TimeFormat::Iso), "1969-12-31 23:59");
+        assert_eq!(clock_text(5400, TimeFormat::S), "5400 s");
+        assert_eq!(clock_text(5400, TimeFormat::Min), "90 min");
     }
 
     #[test]

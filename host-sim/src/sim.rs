@@ -328,7 +328,7 @@ pub trait Policy {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, clap::ValueEnum)]
 #[serde(rename_all = "kebab-case")]
 pub enum PolicyKind {
-    /// The device's gate controller ([`holdback_core::control::Controller`]), stepped at
+    /// The device's gate controller (holdback-core's `Controller`), stepped at
     /// `control.step_s` on the sensor models' readings: the policy that is judged.
     Controller,
     /// The pre-retrofit fixed outlet (no gate).
@@ -905,7 +905,11 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
             }
         }
         if mode != last_mode {
-            *r.time_in_mode_s.entry(last_mode).or_insert(0) += (t - mode_since) as u64;
+            // Only modes actually spent time in (the policy's name stands for the controller's
+            // mode until its first step, for no time at all).
+            if t > mode_since {
+                *r.time_in_mode_s.entry(last_mode).or_insert(0) += (t - mode_since) as u64;
+            }
             last_mode = mode;
             mode_since = t;
         }
@@ -980,7 +984,13 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         {
             r.drawdown_s = Some(t64 - r.rain_end_s);
         }
-        if t.is_multiple_of(record) {
+        let pending = t64 < runoff_done_s;
+        let done_rain = t64 >= rain_end;
+        let finished = done_rain && drained && !pending;
+        let out_of_time = t64 >= total_s;
+        // Every `record` seconds, and always the last step, so that a record interval longer
+        // than the run still writes the end state.
+        if t.is_multiple_of(record) || finished || out_of_time {
             r.rows.push(Row {
                 t_s: t,
                 rain_mm: rain_since_record as f32,
@@ -995,18 +1005,18 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
             });
             rain_since_record = 0.0;
         }
-        let pending = t64 < runoff_done_s;
-        let done_rain = t64 >= rain_end;
-        if done_rain && drained && !pending {
+        if finished {
             break;
         }
-        if t64 >= total_s {
+        if out_of_time {
             r.cut_short = pending;
             break;
         }
     }
     r.length_s = t as u64;
-    *r.time_in_mode_s.entry(last_mode).or_insert(0) += (t - mode_since) as u64;
+    if t > mode_since {
+        *r.time_in_mode_s.entry(last_mode).or_insert(0) += (t - mode_since) as u64;
+    }
     for fc in &mut r.forecast_checks {
         for row in &mut fc.rows {
             let at = fc.at_s + row.ahead_s;

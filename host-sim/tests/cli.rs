@@ -167,6 +167,96 @@ fn rating_rejects_an_opening_beyond_the_gate() {
     assert!(text(&o.stderr).contains("--opening = 2: must be in [0, 0.6]"));
 }
 
+/// `demo --write-pond` writes the demo pond file and never replaces an operator's file
+/// without `--force` (before, it overwrote silently).
+#[test]
+fn write_pond_leaves_an_existing_file_alone_without_force() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("my-pond.toml");
+    let o = run(&["demo", "--write-pond", p.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(0));
+    assert_eq!(std::fs::read_to_string(&p).unwrap(), DEMO_POND);
+    std::fs::write(&p, "# my own survey\n").unwrap();
+    let o = run(&["demo", "--write-pond", p.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        text(&o.stderr).contains("already exists"),
+        "{}",
+        text(&o.stderr)
+    );
+    assert_eq!(std::fs::read_to_string(&p).unwrap(), "# my own survey\n");
+    let o = run(&["demo", "--write-pond", p.to_str().unwrap(), "--force"]);
+    assert_eq!(o.status.code(), Some(0));
+    assert_eq!(std::fs::read_to_string(&p).unwrap(), DEMO_POND);
+}
+
+/// A record interval longer than the run still writes the run's last step (before, the
+/// time series was a header alone), and the last row is the end of the run.
+#[test]
+fn a_record_interval_longer_than_the_run_still_writes_the_end_state() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let out = dir.path().join("out");
+    let o = run(&[
+        "replay",
+        p.to_str().unwrap(),
+        "--design",
+        "2:30:uniform",
+        "--policy",
+        "fixed",
+        "--record-s",
+        "10000000",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(
+        o.status.code().is_some_and(|c| c <= 1),
+        "{}",
+        text(&o.stderr)
+    );
+    let csv = std::fs::read_to_string(out.join("series-fixed.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 2, "{csv}");
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary-fixed.json")).unwrap())
+            .unwrap();
+    let last_t: f64 = csv
+        .lines()
+        .nth(1)
+        .unwrap()
+        .split(',')
+        .next()
+        .unwrap()
+        .parse()
+        .unwrap();
+    // The run's length: its time in modes (a baseline has one, named after the policy).
+    let length: u64 = s["time_in_mode_s"]
+        .as_object()
+        .unwrap()
+        .values()
+        .map(|v| v.as_u64().unwrap())
+        .sum();
+    assert_eq!(last_t, length as f64, "{csv}");
+}
+
+/// A stage step finer than the printed millimetre is refused at once (before, `--step
+/// 1e-9` set out to print billions of rows and never ended); a millimetre step works.
+#[test]
+fn rating_refuses_a_step_finer_than_it_prints() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let o = run(&["rating", p.to_str().unwrap(), "--step", "1e-9"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        text(&o.stderr).contains("--step = 0.000000001: must be at least 0.001 m"),
+        "{}",
+        text(&o.stderr)
+    );
+    let o = run(&["rating", p.to_str().unwrap(), "--step", "0.001"]);
+    assert_eq!(o.status.code(), Some(0));
+    // Floor 41.00 to crest + 0.5 = 44.00 m in millimetres, and the header.
+    assert_eq!(text(&o.stdout).lines().count(), 3002);
+}
+
 /// TOML → PondConfig → pack → unpack → the same config and, re-packed, the same bytes.
 #[test]
 fn pond_file_round_trips_through_the_packed_form() {
@@ -276,11 +366,19 @@ fn recorded_rain_is_split_into_events_and_replayed() {
     let err = text(&o.stderr);
     assert!(matches!(o.status.code(), Some(0 | 1)), "{err}");
     assert!(
-        err.contains("event 4:") && !err.contains("event 5:"),
+        err.contains(": 4 events (separated by at least 3600 s"),
         "{err}"
     );
+    // Steps 47..82 of the 5-min record (2.9 h), whose first interval ends 2017-01-01 12:29:59
+    // (stamps mark the end of their interval): 16:15 to 19:10 on the file's clock.
     assert!(
-        err.contains("event 2: steps 47..82 (2.9 h), 71.40 mm"),
+        err.contains("event 2: 2017-01-01 16:15 to 2017-01-01 19:10, 71.40 mm"),
+        "{err}"
+    );
+    // The shower before it ended 2.75 h earlier, less than the 48 h drawdown target: the
+    // replay from an empty pond is flagged.
+    assert!(
+        err.contains("event 2 is replayed from the normal level, but the event before it ended only 2.8 h earlier"),
         "{err}"
     );
     assert!(
@@ -301,6 +399,49 @@ fn recorded_rain_is_split_into_events_and_replayed() {
     assert!(html.contains("<svg") && html.contains("qualified engineer"));
     let csv = std::fs::read_to_string(out.join("series-threshold.csv")).unwrap();
     assert!(csv.starts_with("t_s,rain_mm,inflow_m3s,stage_m,stage_read_m,storage_m3"));
+}
+
+/// `--list-events` prints the record's events to stdout as CSV, on the file's own calendar,
+/// and replays nothing (before, the event list went to stderr as step indices only).
+#[test]
+fn list_events_prints_the_events_as_csv_and_stops() {
+    let rain = repo().join("tests/data/rain/sg_s117_storms.csv");
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let o = bin()
+        .args([
+            "replay",
+            p.to_str().unwrap(),
+            "--rain",
+            rain.to_str().unwrap(),
+            "--time-col",
+            "timestamp_sgt",
+            "--depth-col",
+            "value",
+            "--inter-event-s",
+            "3600",
+            "--list-events",
+            "--out",
+        ])
+        .arg(dir.path().join("out"))
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    let out = text(&o.stdout);
+    let lines: Vec<&str> = out.lines().collect();
+    assert_eq!(lines[0], "event,start,end,duration_h,depth_mm,dry_before_h");
+    assert_eq!(lines.len(), 5, "{out}");
+    assert_eq!(
+        lines[2],
+        "2,2017-01-01 16:15,2017-01-01 19:10,2.92,71.40,2.75"
+    );
+    // The three storms of the excerpt: 71.4 + 53.4 + 66.8 mm, and the 0.4 mm shower.
+    let total: f64 = lines[1..]
+        .iter()
+        .map(|l| l.split(',').nth(4).unwrap().parse::<f64>().unwrap())
+        .sum();
+    assert!((total - 192.0).abs() < 1e-9, "{total}");
+    assert!(!dir.path().join("out").exists(), "nothing replayed");
 }
 
 /// Bad rows and gaps are reported with line numbers; --strict makes them fatal (exit 2).
@@ -431,6 +572,57 @@ fn batch_runs_in_parallel_and_fails_when_a_run_fails() {
     // The 100-year storm overtops the freeboard of the demo pond even at the bound.
     let any_fail = c.lines().skip(1).any(|l| l.ends_with(",false"));
     assert_eq!(o.status.code(), Some(if any_fail { 1 } else { 0 }));
+}
+
+/// `batch --policy` runs every policy listed (before, only the first one ran) and
+/// `--seed` sets the first seed (before, batch ignored it and always began at 1); the exit
+/// code judges the controller's rows, the baselines are shown for comparison.
+#[test]
+fn batch_runs_every_policy_listed_from_the_seed_given() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let csv = dir.path().join("batch.csv");
+    let o = run(&[
+        "batch",
+        p.to_str().unwrap(),
+        "--return-periods",
+        "2",
+        "--durations-min",
+        "60",
+        "--policy",
+        "controller,fixed",
+        "--seed",
+        "7",
+        "--seeds",
+        "2",
+        "--tail-h",
+        "24",
+        "--csv",
+        csv.to_str().unwrap(),
+    ]);
+    let c = std::fs::read_to_string(&csv).unwrap();
+    let rows: Vec<Vec<&str>> = c.lines().skip(1).map(|l| l.split(',').collect()).collect();
+    let runs: Vec<(&str, &str)> = rows.iter().map(|r| (r[2], r[1])).collect();
+    assert_eq!(
+        runs,
+        [
+            ("controller", "7"),
+            ("controller", "8"),
+            ("fixed", "7"),
+            ("fixed", "8")
+        ],
+        "{c}"
+    );
+    let controller_failed = rows
+        .iter()
+        .any(|r| r[2] == "controller" && r.last() == Some(&"false"));
+    assert_eq!(
+        o.status.code(),
+        Some(if controller_failed { 1 } else { 0 }),
+        "{}",
+        text(&o.stderr)
+    );
+    assert!(text(&o.stdout).contains("fixed"), "{}", text(&o.stdout));
 }
 
 /// A replay cut short by `--tail-h` while runoff is still arriving never reads as a pass:

@@ -88,7 +88,9 @@ pub enum FleetCmd {
     Storms {
         /// The log file.
         file: PathBuf,
-        /// The pond file (JSON).
+        /// The fleet's pond record: a JSON object (pond_id, name, permit_m3s, normal_m,
+        /// crest_m, freeboard_min_m, drawdown_target_s, design_return_period_yr, idf, wear),
+        /// not the TOML pond file of `holdback check`.
         #[arg(long)]
         pond: PathBuf,
         /// Rain CSV, for a log without rain records.
@@ -103,7 +105,7 @@ pub enum FleetCmd {
         /// The store.
         #[command(flatten)]
         db: DbArg,
-        /// Pond files (JSON).
+        /// The fleet's pond records (JSON, as for `fleet storms --pond`; not TOML pond files).
         files: Vec<PathBuf>,
     },
     /// Import logs (dumps, exported logs, telemetry); importing twice changes nothing.
