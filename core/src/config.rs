@@ -299,6 +299,15 @@ impl PondConfig {
             ));
         }
         Self::check_control(&parts.control)?;
+        // A deadband as deep as the pond between normal and crest would never let the gate
+        // move at all (the deadband is finite and non-negative here: checked just above).
+        if parts.control.deadband_m >= l.crest_m - l.normal_m {
+            return Err(inconsistent(
+                "control.deadband_m",
+                parts.control.deadband_m,
+                "must be below levels.crest_m - levels.normal_m",
+            ));
+        }
         Self::check_steps(&parts.control, parts.catchment.dt_s())?;
         Self::check_sensors(&parts.sensors, floor, l.crest_m)?;
         Ok(PondConfig { parts })

@@ -516,12 +516,25 @@ fn problem(path: impl Into<String>, message: impl Into<String>) -> Problem {
     }
 }
 
+/// The rain gauge's settings, which the core names without their table.
+const GAUGE_KEYS: [&str; 7] = [
+    "bucket_mm",
+    "clog_after_s",
+    "inter_event_dry_s",
+    "max_intensity_mm_h",
+    "spread_cap_s",
+    "window_s",
+    "windows_s",
+];
+
 fn invalid(prefix: &str, e: &Invalid) -> Problem {
     let field = match e.field {
         "runoff_coefficient" => "c",
         other => other,
     };
-    let path = if prefix.is_empty() || field.contains('.') {
+    let path = if prefix.is_empty() && GAUGE_KEYS.contains(&field) {
+        format!("sensors.gauge.{field}")
+    } else if prefix.is_empty() || field.contains('.') {
         field.to_string()
     } else {
         format!("{prefix}.{field}")
@@ -553,6 +566,41 @@ fn map_build(part: SpecPart, error: &BuildError) -> Problem {
             problem(*field, format!(" = {value}: {rule}"))
         }
         other => problem(prefix, format!(": {other}")),
+    }
+}
+
+/// An IDF coefficient the core refused, with the path of the curve and key it came from
+/// (the core names the coefficient, `sherman_a`, not the curve): the first curve of the
+/// formula's form whose coefficient holds the refused value.
+fn idf_problem(idf: &IdfFile, e: &Invalid) -> Problem {
+    let key = match e.field {
+        "talbot_a" | "sherman_a" | "power_a" => Some("a_mm_h"),
+        "talbot_b_min" | "sherman_b_min" | "power_b" => Some("b"),
+        "sherman_c" => Some("c"),
+        _ => None,
+    };
+    let form = match e.field.split('_').next() {
+        Some("power") => "power-law",
+        Some(other) => other,
+        None => "",
+    };
+    let same = |v: f32| v.to_bits() == e.value.to_bits() || (v.is_nan() && e.value.is_nan());
+    let found = key.and_then(|k| {
+        idf.curve
+            .iter()
+            .position(|c| {
+                c.form == form
+                    && match k {
+                        "a_mm_h" => same(c.a_mm_h),
+                        "b" => same(c.b),
+                        _ => c.c.is_some_and(same),
+                    }
+            })
+            .map(|i| format!("idf.curve[{i}].{k}"))
+    });
+    match found {
+        Some(path) => problem(path, format!(" = {}: {}", e.value, e.rule)),
+        None => invalid("idf", e),
     }
 }
 
@@ -781,11 +829,22 @@ pub fn load_str(text: &str) -> Result<Pond, Vec<Problem>> {
             )]);
         }
     };
-    let file: File = tree.try_into().map_err(|e: toml::de::Error| {
-        let mut p = toml_problem(&e);
-        us_note(&mut p, &renamed);
-        vec![p]
-    })?;
+    // Through serde_path_to_error, so that a value of the wrong type names its key
+    // ("outlet.gate.width_m: invalid type: string ..."), which the bare TOML error does not
+    // once the text has become a tree.
+    let file: File = serde_path_to_error::deserialize(tree).map_err(
+        |e: serde_path_to_error::Error<toml::de::Error>| {
+            let path = e.path().to_string();
+            let msg = e.inner().message().trim().to_string();
+            let mut p = if path == "." || path.is_empty() {
+                problem("", format!("pond file: {msg}"))
+            } else {
+                problem(&path, format!(": {msg}"))
+            };
+            us_note(&mut p, &renamed);
+            vec![p]
+        },
+    )?;
     let mut pond = build(&file).map_err(|mut ps| {
         for p in &mut ps {
             us_note(p, &renamed);
@@ -911,6 +970,10 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
         safe_opening_m: f.safe.safe_opening_m,
     };
     let config = spec.build().map_err(|e| match e {
+        PackError::Build {
+            error: BuildError::Rain(holdback_core::rain::RainError::Invalid(inv)),
+            ..
+        } => one(idf_problem(&f.idf, &inv)),
         PackError::Build { part, error } => one(map_build(part, &error)),
         other => one(problem("", other.to_string())),
     })?;
@@ -1004,6 +1067,22 @@ fn warnings(f: &File, pond: &Pond) -> Vec<String> {
                  the crest ({q:.3} m3/s); the permit does not limit this pond"
             ));
         }
+    }
+    let c = cfg.control();
+    if c.persistence_s > c.horizon_s {
+        w.push(format!(
+            "control.persistence_s = {}: longer than control.horizon_s = {}; the forecast \
+             assumes the rain of the moment lasts over its whole horizon",
+            c.persistence_s, c.horizon_s
+        ));
+    }
+    let depth = cfg.levels().crest_m - cfg.levels().normal_m;
+    if c.deadband_m > 0.1 * depth {
+        w.push(format!(
+            "control.deadband_m = {}: more than a tenth of the depth from normal to crest \
+             ({depth:.2} m); the gate will answer the stage coarsely",
+            c.deadband_m
+        ));
     }
     let target = cfg.control().drawdown_target_s;
     match drain_time_s(cfg, limit, target.saturating_mul(4)) {
@@ -1165,6 +1244,64 @@ mod tests {
         assert_eq!(
             e[0].to_string(),
             "outlet.gate.width_m = -0.4: must be a finite length in (0, 1000] m"
+        );
+    }
+
+    /// Every refusal names the key as the operator wrote it: a value of the wrong type
+    /// (before: no path at all once the text was a tree), a gauge setting (before: bare
+    /// `bucket_mm`) and an IDF coefficient (before: the core's `idf.sherman_a`, no curve).
+    #[test]
+    fn refusals_name_the_key_in_the_file() {
+        let cases = [
+            (
+                DEMO_POND.replace("width_m = 0.60", "width_m = \"wide\""),
+                "outlet.gate.width_m: invalid type: string \"wide\", expected f32",
+            ),
+            (
+                DEMO_POND.replace("bucket_mm = 0.2", "bucket_mm = -1.0"),
+                "sensors.gauge.bucket_mm = -1: must be a finite number > 0",
+            ),
+            (
+                DEMO_POND.replacen("a_mm_h = 850.0", "a_mm_h = -850.0", 1),
+                "idf.curve[0].a_mm_h = -850: must be a finite number > 0",
+            ),
+            (
+                DEMO_POND.replace("deadband_m = 0.01", "deadband_m = 10.0"),
+                "control.deadband_m = 10: must be below levels.crest_m - levels.normal_m",
+            ),
+        ];
+        for (text, want) in cases {
+            let e = load_str(&text).unwrap_err();
+            assert_eq!(e[0].to_string(), want);
+        }
+    }
+
+    /// Legal but suspicious control settings are warned about, not refused.
+    #[test]
+    fn suspicious_control_settings_are_warned_about() {
+        let p = load_str(&DEMO_POND.replace("persistence_s = 1800", "persistence_s = 4000000000"))
+            .unwrap();
+        assert!(
+            p.warnings
+                .iter()
+                .any(|w| w.starts_with("control.persistence_s = 4000000000: longer than")),
+            "{:?}",
+            p.warnings
+        );
+        let p = load_str(&DEMO_POND.replace("deadband_m = 0.01", "deadband_m = 0.5")).unwrap();
+        assert!(
+            p.warnings
+                .iter()
+                .any(|w| w.starts_with("control.deadband_m = 0.5: more than a tenth")),
+            "{:?}",
+            p.warnings
+        );
+        assert!(
+            !load_str(DEMO_POND)
+                .unwrap()
+                .warnings
+                .iter()
+                .any(|w| w.starts_with("control.")),
         );
     }
 }

@@ -181,10 +181,30 @@ pub fn clock_text(t_s: i64, format: TimeFormat) -> String {
 
 /// Seconds since 1970-01-01T00:00 of an ISO-like stamp.
 pub fn parse_iso(s: &str) -> Result<i64, String> {
-    let s = s.trim().trim_end_matches('Z');
-    let (date, time) = s
-        .split_once(['T', ' '])
-        .ok_or_else(|| format!("time {s:?}: expected YYYY-MM-DD HH:MM[:SS]"))?;
+    let s = s.trim();
+    let expected = || format!("time {s:?}: expected YYYY-MM-DD HH:MM[:SS[.fff]][Z|±HH:MM]");
+    let (date, time) = s.split_once(['T', ' ']).ok_or_else(expected)?;
+    // A UTC offset (Z, +HH:MM, -HH:MM, +HHMM, +HH) brings the stamp to UTC, so a file that
+    // changes offset (daylight saving) keeps its order.
+    let (time, offset_s) = if let Some(t) = time.strip_suffix('Z') {
+        (t, 0)
+    } else if let Some(i) = time.rfind(['+', '-']) {
+        let (t, off) = time.split_at(i);
+        let sign = if off.starts_with('-') { -1 } else { 1 };
+        let digits: String = off[1..].chars().filter(|c| *c != ':').collect();
+        let (oh, om) = match digits.len() {
+            2 => (digits.as_str(), "0"),
+            4 => digits.split_at(2),
+            _ => return Err(format!("time {s:?}: UTC offset {off:?} is not ±HH:MM")),
+        };
+        let (oh, om) = match (oh.parse::<i64>(), om.parse::<i64>()) {
+            (Ok(h), Ok(m)) if h <= 14 && m < 60 => (h, m),
+            _ => return Err(format!("time {s:?}: UTC offset {off:?} is not ±HH:MM")),
+        };
+        (t, sign * (oh * 3600 + om * 60))
+    } else {
+        (time, 0)
+    };
     let num = |p: &str, what: &str| {
         p.parse::<i64>()
             .map_err(|_| format!("time {s:?}: {what} {p:?} is not a number"))
@@ -192,12 +212,22 @@ pub fn parse_iso(s: &str) -> Result<i64, String> {
     let d: Vec<&str> = date.split('-').collect();
     let t: Vec<&str> = time.split(':').collect();
     if d.len() != 3 || !(2..=3).contains(&t.len()) {
-        return Err(format!("time {s:?}: expected YYYY-MM-DD HH:MM[:SS]"));
+        return Err(expected());
     }
     let (y, mo, da) = (num(d[0], "year")?, num(d[1], "month")?, num(d[2], "day")?);
     let (h, mi) = (num(t[0], "hour")?, num(t[1], "minute")?);
+    // Fractions of a second are dropped: the record's steps are whole seconds.
     let se = match t.get(2) {
-        Some(x) => num(x, "second")?,
+        Some(x) => {
+            let whole = match x.split_once(['.', ',']) {
+                Some((w, frac)) if !frac.is_empty() && frac.bytes().all(|b| b.is_ascii_digit()) => {
+                    w
+                }
+                Some(_) => return Err(format!("time {s:?}: second {x:?} is not a number")),
+                None => x,
+            };
+            num(whole, "second")?
+        }
         None => 0,
     };
     if !(1..=12).contains(&mo) || !(1..=31).contains(&da) || h > 23 || mi > 59 || se > 60 {
@@ -215,7 +245,7 @@ pub fn parse_iso(s: &str) -> Result<i64, String> {
             "time {s:?}: month {mo} of {y} has {month_days} days"
         ));
     }
-    Ok(days_from_civil(y, mo, da) * 86_400 + h * 3600 + mi * 60 + se)
+    Ok(days_from_civil(y, mo, da) * 86_400 + h * 3600 + mi * 60 + se - offset_s)
 }
 
 fn parse_time(s: &str, f: TimeFormat) -> Result<i64, String> {
@@ -254,6 +284,8 @@ pub fn parse(text: &str, fmt: &RainFormat) -> Result<RainRecord, String> {
     if fmt.interval_s == 0 {
         return Err("--interval-s = 0: must be > 0".into());
     }
+    // A byte-order mark (spreadsheet exports) is not part of the first header.
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let mut lines = text
         .lines()
         .enumerate()
@@ -501,6 +533,40 @@ mod tests {
         assert_eq!(parse_iso("1970-01-01 00:00").unwrap(), 0);
         assert_eq!(parse_iso("2000-03-01T00:00:10Z").unwrap(), 951_868_810);
         assert!(parse_iso("2000-13-01 00:00").is_err());
+    }
+
+    /// Stamps as loggers and spreadsheets write them: fractions of a second (dropped), UTC
+    /// offsets (brought to UTC: 12:00+02:00 is 10:00Z), and a byte-order mark before the
+    /// header. Before, each of these made every row a bad row.
+    #[test]
+    fn logger_stamps_with_fractions_offsets_and_a_bom_are_read() {
+        let base = parse_iso("2021-06-01 10:00:00").unwrap();
+        for (text, want) in [
+            ("2021-06-01T10:00:00.250Z", base),
+            ("2021-06-01 10:00:00,9", base),
+            ("2021-06-01T12:00:00+02:00", base),
+            ("2021-06-01T05:30-04:30", base),
+            ("2021-06-01T11:00:00+0100", base),
+            ("2021-06-01T09:00:00-01", base),
+        ] {
+            assert_eq!(parse_iso(text), Ok(want), "{text}");
+        }
+        for bad in [
+            "2021-06-01T10:00:00.x",
+            "2021-06-01T10:00:00+2",
+            "2021-06-01T10:00:00+25:00",
+        ] {
+            assert!(parse_iso(bad).is_err(), "{bad}");
+        }
+        let f = RainFormat {
+            kind: RainKind::Tips,
+            ..fmt()
+        };
+        let text = "\u{feff}t\n2021-06-01T10:00:10.5+02:00\n2021-06-01T10:01:20.0+02:00\n";
+        let r = parse(text, &f).unwrap();
+        assert!(r.bad_rows.is_empty(), "{:?}", r.bad_rows);
+        assert!((r.total_mm() - 0.4).abs() < 1e-12);
+        assert_eq!(r.start_s, parse_iso("2021-06-01 08:00").unwrap());
     }
 
     /// Event times are printed back on the file's calendar: `civil_from_days` inverts

@@ -1,4 +1,4 @@
-//! Text tables, plots (SVG with text; PNG with text when a font is found, see [`png_font`]),
+//! Text tables, plots (SVG and PNG, labelled with a built-in font, see [`png_font`]),
 //! and the one-page HTML sign-off report.
 
 use std::fmt::Write as _;
@@ -416,7 +416,7 @@ where
     Ok(())
 }
 
-/// The plots as an SVG document (without text when no font is found, see [`png_font`]).
+/// The plots as an SVG document (labelled with the font of [`png_font`]).
 pub fn plot_svg(p: &Pond, runs: &[(Run, Summary)]) -> Result<String, String> {
     // plotters lays text out with the registered font, in SVG too.
     let text = png_font();
@@ -428,26 +428,28 @@ pub fn plot_svg(p: &Pond, runs: &[(Run, Summary)]) -> Result<String, String> {
     Ok(svg)
 }
 
-/// Registers a font for PNG text: DejaVu Sans from Debian's `fonts-dejavu-core` (part of the
-/// project's machine image; `.ci/run` need not install it), or `HOLDBACK_FONT`. Returns
-/// whether a font is available; without one the PNG has no text (the SVG always has).
+/// Registers the plots' font: the TrueType file named by `HOLDBACK_FONT` if it loads, else
+/// DejaVu Sans built into the binary (the `dejavu` crate; Bitstream Vera licence), so plots
+/// have their labels on any machine. Returns whether a font is registered (false only if
+/// even the built-in font is refused; then the plots have no text).
 pub fn png_font() -> bool {
     use std::sync::OnceLock;
     static OK: OnceLock<bool> = OnceLock::new();
     *OK.get_or_init(|| {
-        let candidates = [
-            std::env::var("HOLDBACK_FONT").unwrap_or_default(),
-            "/usr/share/fonts/truetype/dejavu/DejaVuSans.ttf".to_string(),
-        ];
-        for c in candidates.iter().filter(|c| !c.is_empty()) {
-            if let Ok(bytes) = std::fs::read(c) {
-                let bytes: &'static [u8] = Box::leak(bytes.into_boxed_slice());
-                if plotters::style::register_font("sans-serif", FontStyle::Normal, bytes).is_ok() {
-                    return true;
-                }
+        if let Some(path) = std::env::var_os("HOLDBACK_FONT").filter(|p| !p.is_empty())
+            && let Ok(bytes) = std::fs::read(&path)
+        {
+            let bytes: &'static [u8] = Box::leak(bytes.into_boxed_slice());
+            if plotters::style::register_font("sans-serif", FontStyle::Normal, bytes).is_ok() {
+                return true;
             }
+            eprintln!(
+                "holdback: note: HOLDBACK_FONT = {}: not a usable font; using the built-in DejaVu Sans",
+                path.to_string_lossy()
+            );
         }
-        false
+        plotters::style::register_font("sans-serif", FontStyle::Normal, dejavu::sans::regular())
+            .is_ok()
     })
 }
 
@@ -684,9 +686,7 @@ pub fn write_all(
     w("plots.svg", svg.as_bytes())?;
     let text = plot_png(p, runs, &dir.join("plots.png"))?;
     if !text {
-        eprintln!(
-            "holdback: note: no font found (DejaVu Sans or HOLDBACK_FONT): the plots have no labels"
-        );
+        eprintln!("holdback: note: the plots' font could not be loaded: the plots have no labels");
     }
     w("report.html", html(p, storm, runs, &svg).as_bytes())?;
     Ok(())

@@ -703,3 +703,181 @@ fn storage_and_extrapolation_warnings_reach_the_summary() {
     let html = std::fs::read_to_string(out.join("report.html")).unwrap();
     assert!(html.contains("<h2>Warnings</h2>") && html.contains("extrapolated"));
 }
+
+/// SI → US key suffixes and the factor to divide an SI value by (per column of a
+/// `[stage, x]` row), longest suffix first. Factors: 1 ft = 0.3048 m, 1 acre =
+/// 0.404 685 642 24 ha, 1 in = 25.4 mm (NIST SP 811, appendix B, exact).
+const TO_US: [(&str, &str, [f64; 2]); 11] = [
+    ("_m_m2", "_ft_ft2", [0.3048, 0.3048 * 0.3048]),
+    ("_m_m3", "_ft_ft3", [0.3048, 0.3048 * 0.3048 * 0.3048]),
+    ("_m_m", "_ft_ft", [1.0, 1.0]),
+    ("_ha", "_acres", [0.404_685_642_24, 0.0]),
+    ("_m_s", "_ft_s", [0.3048, 0.0]),
+    ("_mm_h", "_in_h", [25.4, 0.0]),
+    ("_m3s", "_cfs", [0.3048 * 0.3048 * 0.3048, 0.0]),
+    ("_m2", "_ft2", [0.3048 * 0.3048, 0.0]),
+    ("_m3", "_ft3", [0.3048 * 0.3048 * 0.3048, 0.0]),
+    ("_m", "_ft", [0.3048, 0.0]),
+    ("_mm", "_in", [25.4, 0.0]),
+];
+
+/// The test's own SI → US rewrite of a pond file tree (the inverse of what the tool does).
+fn to_us(v: &mut toml::Value) {
+    let scale = |x: &mut toml::Value, f: f64| {
+        let si = x.as_float().or(x.as_integer().map(|i| i as f64)).unwrap();
+        *x = toml::Value::Float(si / f);
+    };
+    match v {
+        toml::Value::Table(t) => {
+            let keys: Vec<String> = t.keys().cloned().collect();
+            for k in keys {
+                let Some(&(si, us, f)) = TO_US.iter().find(|(si, _, _)| k.ends_with(si)) else {
+                    to_us(t.get_mut(&k).unwrap());
+                    continue;
+                };
+                let mut val = t.remove(&k).unwrap();
+                match &mut val {
+                    toml::Value::Array(rows) if rows.iter().all(|r| r.is_array()) => {
+                        for r in rows {
+                            let r = r.as_array_mut().unwrap();
+                            scale(&mut r[0], f[0]);
+                            scale(&mut r[1], f[1]);
+                        }
+                    }
+                    toml::Value::Array(xs) => xs.iter_mut().for_each(|x| scale(x, f[0])),
+                    x => scale(x, f[0]),
+                }
+                t.insert(format!("{}{us}", k.trim_end_matches(si)), val);
+            }
+        }
+        toml::Value::Array(xs) => xs.iter_mut().for_each(to_us),
+        _ => {}
+    }
+}
+
+/// The demo pond written in US customary units (by this test's own conversion) is the same
+/// pond: it checks, packs to the same device bytes as the SI file, and a replay on it gives
+/// the same summary. Before, no end-to-end test read a US file.
+#[test]
+fn a_us_customary_pond_file_is_the_same_pond() {
+    let dir = tempfile::tempdir().unwrap();
+    let si = demo_file(dir.path());
+    let mut tree: toml::Value = toml::from_str(DEMO_POND).unwrap();
+    to_us(&mut tree);
+    tree.as_table_mut()
+        .unwrap()
+        .insert("units".into(), toml::Value::String("us".into()));
+    let us_text = toml::to_string(&tree).unwrap();
+    assert!(us_text.contains("width_ft") && !us_text.contains("width_m"));
+    let us = dir.path().join("pond-us.toml");
+    std::fs::write(&us, &us_text).unwrap();
+    let o = run(&["check", us.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    let (a, b) = (dir.path().join("si.bin"), dir.path().join("us.bin"));
+    for (pond, packed) in [(&si, &a), (&us, &b)] {
+        let o = run(&[
+            "pack",
+            pond.to_str().unwrap(),
+            "-o",
+            packed.to_str().unwrap(),
+        ]);
+        assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
+    }
+    assert_eq!(std::fs::read(&a).unwrap(), std::fs::read(&b).unwrap());
+    let mut summaries = Vec::new();
+    for (pond, name) in [(&si, "si"), (&us, "us")] {
+        let out = dir.path().join(name);
+        let o = run(&[
+            "replay",
+            pond.to_str().unwrap(),
+            "--design",
+            "10:60:chicago",
+            "--policy",
+            "controller",
+            "--out",
+            out.to_str().unwrap(),
+        ]);
+        assert!(
+            matches!(o.status.code(), Some(0 | 1)),
+            "{}",
+            text(&o.stderr)
+        );
+        summaries.push(std::fs::read_to_string(out.join("summary-controller.json")).unwrap());
+    }
+    assert_eq!(summaries[0], summaries[1]);
+}
+
+/// Tipping-bucket input: one row per tip, each worth the pond file's bucket (0.2 mm), read
+/// into a 1-minute hyetograph: 300 tips over an hour replay as 60 mm of rain.
+#[test]
+fn tip_times_replay_as_rain_of_one_bucket_each() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let mut csv = String::from("tip_time\n");
+    for k in 0..300 {
+        let s = 12 * k + 5;
+        csv.push_str(&format!(
+            "2024-07-14T15:{:02}:{:02}+02:00\n",
+            s / 60,
+            s % 60
+        ));
+    }
+    let rain = dir.path().join("tips.csv");
+    std::fs::write(&rain, csv).unwrap();
+    let out = dir.path().join("out");
+    let o = run(&[
+        "replay",
+        p.to_str().unwrap(),
+        "--rain",
+        rain.to_str().unwrap(),
+        "--kind",
+        "tips",
+        "--time-col",
+        "tip_time",
+        "--interval-s",
+        "60",
+        "--policy",
+        "bound",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let err = text(&o.stderr);
+    assert!(matches!(o.status.code(), Some(0 | 1)), "{err}");
+    assert!(err.contains("300 rows read, 60.00 mm over 1.0 h"), "{err}");
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary-bound.json")).unwrap())
+            .unwrap();
+    assert!((s["rain_mm"].as_f64().unwrap() - 60.0).abs() < 1e-9, "{s}");
+}
+
+/// The plots carry their labels on any machine: with `HOLDBACK_FONT` naming a file that is
+/// not a font, the built-in DejaVu Sans is used and the SVG has its captions (before, a
+/// machine without the system's DejaVu font got plots with no text at all).
+#[test]
+fn plots_are_labelled_without_a_system_font() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let not_a_font = dir.path().join("not-a-font.ttf");
+    std::fs::write(&not_a_font, b"not a font").unwrap();
+    let out = dir.path().join("out");
+    let o = bin()
+        .args([
+            "replay",
+            p.to_str().unwrap(),
+            "--design",
+            "2:30:uniform",
+            "--policy",
+            "bound",
+            "--out",
+            out.to_str().unwrap(),
+        ])
+        .env("HOLDBACK_FONT", &not_a_font)
+        .output()
+        .unwrap();
+    let err = text(&o.stderr);
+    assert!(matches!(o.status.code(), Some(0 | 1)), "{err}");
+    assert!(err.contains("using the built-in DejaVu Sans"), "{err}");
+    assert!(!err.contains("no labels"), "{err}");
+    let svg = std::fs::read_to_string(out.join("plots.svg")).unwrap();
+    assert!(svg.contains("<text") && svg.contains("Rain (mm per record step)"));
+}
