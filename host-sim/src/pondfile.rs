@@ -969,14 +969,28 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
         },
         safe_opening_m: f.safe.safe_opening_m,
     };
-    let config = spec.build().map_err(|e| match e {
+    let map_pack = |e: PackError| match e {
         PackError::Build {
             error: BuildError::Rain(holdback_core::rain::RainError::Invalid(inv)),
             ..
-        } => one(idf_problem(&f.idf, &inv)),
-        PackError::Build { part, error } => one(map_build(part, &error)),
-        other => one(problem("", other.to_string())),
-    })?;
+        } => idf_problem(&f.idf, &inv),
+        PackError::Build { part, error } => map_build(part, &error),
+        other => problem("", other.to_string()),
+    };
+    // The parts that stand alone are built one by one first, so that a file with mistakes
+    // in several of them hears of all of them at once; the rules between parts (levels
+    // against the storage, steps against the catchment, ...) follow once the parts are sound.
+    let parts = [
+        spec.build_storage().err(),
+        spec.build_outlet().err(),
+        spec.build_catchment().err(),
+        spec.build_idf().err(),
+    ];
+    let problems: Vec<Problem> = parts.into_iter().flatten().map(map_pack).collect();
+    if !problems.is_empty() {
+        return Err(problems);
+    }
+    let config = spec.build().map_err(|e| one(map_pack(e)))?;
     let existing = match &f.existing {
         None => None,
         Some(ex) => {
@@ -1274,6 +1288,36 @@ mod tests {
             let e = load_str(&text).unwrap_err();
             assert_eq!(e[0].to_string(), want);
         }
+    }
+
+    /// Mistakes in several parts of a file are all reported in one go (before, only the
+    /// first was, so fixing a file took one run per mistake).
+    #[test]
+    fn mistakes_in_several_parts_are_reported_together() {
+        let bad = DEMO_POND
+            .replace("width_m = 0.60", "width_m = -0.4")
+            .replacen("a_mm_h = 850.0", "a_mm_h = -850.0", 1)
+            .replacen("c = 0.85", "c = 1.7", 1);
+        let e: Vec<String> = load_str(&bad)
+            .unwrap_err()
+            .iter()
+            .map(|p| p.to_string())
+            .collect();
+        assert_eq!(e.len(), 3, "{e:?}");
+        assert!(
+            e.iter()
+                .any(|p| p.starts_with("outlet.gate.width_m = -0.4")),
+            "{e:?}"
+        );
+        assert!(
+            e.iter()
+                .any(|p| p.starts_with("idf.curve[0].a_mm_h = -850")),
+            "{e:?}"
+        );
+        assert!(
+            e.iter().any(|p| p.starts_with("catchment.sub[0].c = 1.7")),
+            "{e:?}"
+        );
     }
 
     /// Legal but suspicious control settings are warned about, not refused.
