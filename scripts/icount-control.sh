@@ -5,8 +5,11 @@
 # calls and nothing else. Repeatable run to run.
 #
 #   kernel_step_plain     one step mid-storm without a fresh forecast
-#   kernel_step_forecast  one step mid-storm with a fresh forecast (predict at the permit
-#                         target over a 3 h horizon at 180 s)
+#   kernel_step_forecast  one step mid-storm with a fresh forecast, low in the pond (the
+#                         forecast's volume bound rules out any approach to the limit: no
+#                         routing)
+#   kernel_step_forecast_routed  the same 1.6 m above normal, where every view of the rain is
+#                         routed at the permit target over a 3 h horizon at 180 s
 #   kernel_storm_step     every step of a 10-year 60-min storm on the demo pond until back at
 #                         normal + 2 h; divided by the number of steps = the storm average
 #
@@ -25,8 +28,8 @@ for l in sys.stdin:
     if m.get("reason") == "compiler-artifact" and m["target"]["name"] == "control" and m.get("executable"):
         print(m["executable"])')
 out=$(mktemp -d)
-printf '%-22s %14s %12s %14s\n' kernel instructions per_step "share@64MHz,1Hz"
-for k in kernel_step_plain kernel_step_forecast kernel_storm_step; do
+printf '%-28s %14s %12s %14s\n' kernel instructions per_step "share@64MHz,1Hz"
+for k in kernel_step_plain kernel_step_forecast kernel_step_forecast_routed kernel_storm_step; do
     CONTROL_ICOUNT=1 valgrind --tool=callgrind --callgrind-out-file="$out/$k.out" \
         --toggle-collect="*control::$k" "$bin" >/dev/null 2>"$out/$k.log"
     n=$(awk '/^summary:/{print $2}' "$out/$k.out")
@@ -37,7 +40,7 @@ for k in kernel_step_plain kernel_step_forecast kernel_storm_step; do
     fi
     per=$((n / steps))
     share=$(awk -v p="$per" 'BEGIN{printf "%.4f %%", 100 * p / 64e6}')
-    printf '%-22s %14s %12s %14s\n' "$k" "$n" "$per" "$share"
+    printf '%-28s %14s %12s %14s\n' "$k" "$n" "$per" "$share"
 done
 echo "storm: $steps steps, $fc forecasts"
 rm -rf "$out"

@@ -1,5 +1,8 @@
 //! Controller step cost on the invented demo pond "quillmere": one step without a fresh
-//! forecast, one step with a fresh forecast, and every step of a whole design storm (10-year,
+//! forecast, one step with a fresh forecast low in the pond (where the forecast's volume
+//! bound shows no view of the rain can bring the pond near its limit, so nothing is routed),
+//! one with a fresh forecast 1.6 m above normal (where the bound cannot rule that out and
+//! every view is routed over the horizon), and every step of a whole design storm (10-year,
 //! 60-minute block, to back at normal + 2 h) through the closed-loop plant.
 //!
 //! Criterion times the first two (`cargo bench -p holdback-tests --bench control`). With
@@ -14,12 +17,12 @@ use holdback_core::control::{Controller, Inputs, Outputs};
 use holdback_tests::closed_loop::{self, Driver, Injection, PlantOptions, block_storm};
 use holdback_tests::ponds;
 
-/// A controller 30 min into a rising storm: (state, inputs, time) for the next step without
-/// a fresh forecast and for the next step with one.
+/// A controller 30 min into a storm rising from `base_m` above normal: (state, inputs, time)
+/// for the next step without a fresh forecast and for the next step with one.
 type Case = (Controller, Inputs, u32);
-fn mid_storm(cfg: &PondConfig) -> (Case, Case) {
+fn mid_storm(cfg: &PondConfig, base_m: f32) -> (Case, Case) {
     let mut c = Controller::new(cfg, 0);
-    let normal = cfg.levels().normal_m;
+    let normal = cfg.levels().normal_m + base_m;
     let input = |k: u32| Inputs {
         stage_m: Some(normal + 0.0004 * k as f32),
         rain_tips: u16::from(k.is_multiple_of(2)),
@@ -68,6 +71,18 @@ fn kernel_step_forecast(c: &mut Controller, cfg: &PondConfig, i: &Inputs, t: u32
 }
 
 #[inline(never)]
+fn kernel_step_forecast_routed(
+    c: &mut Controller,
+    cfg: &PondConfig,
+    i: &Inputs,
+    t: u32,
+) -> Outputs {
+    // A distinct body, so the linker cannot fold the kernels into one symbol.
+    black_box(4u8);
+    c.step(cfg, i, t)
+}
+
+#[inline(never)]
 fn kernel_storm_step(c: &mut Controller, cfg: &PondConfig, i: &Inputs, t: u32) -> Outputs {
     // A distinct body, so the linker cannot fold the three kernels into one symbol.
     black_box(3u8);
@@ -110,12 +125,15 @@ fn storm_run(cfg: &PondConfig) -> (u32, u32) {
 
 fn main() {
     let cfg = PondConfig::new(ponds::quillmere()).unwrap();
-    let ((pc, pi, pt), (fc, fi, ft)) = mid_storm(&cfg);
+    let ((pc, pi, pt), (fc, fi, ft)) = mid_storm(&cfg, 0.0);
+    let (_, (rc, ri, rt)) = mid_storm(&cfg, 1.6);
     if std::env::var_os("CONTROL_ICOUNT").is_some() {
         let mut a = pc.clone();
         black_box(kernel_step_plain(&mut a, &cfg, &pi, pt));
         let mut b = fc.clone();
         black_box(kernel_step_forecast(&mut b, &cfg, &fi, ft));
+        let mut r = rc.clone();
+        black_box(kernel_step_forecast_routed(&mut r, &cfg, &ri, rt));
         let (steps, forecasts) = storm_run(&cfg);
         eprintln!("storm_steps {steps} forecasts {forecasts}");
         return;
@@ -132,6 +150,13 @@ fn main() {
         b.iter_batched(
             || fc.clone(),
             |mut x| black_box(kernel_step_forecast(&mut x, &cfg, &fi, ft)),
+            BatchSize::SmallInput,
+        )
+    });
+    crit.bench_function("control step, fresh forecast routed", |b| {
+        b.iter_batched(
+            || rc.clone(),
+            |mut x| black_box(kernel_step_forecast_routed(&mut x, &cfg, &ri, rt)),
             BatchSize::SmallInput,
         )
     });
