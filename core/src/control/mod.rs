@@ -386,6 +386,25 @@ pub struct Controller {
     forecasts: u32,
 }
 
+/// The last outlet evaluation of a step, by the bits of its stage and opening.
+#[derive(Debug, Clone, Copy, Default)]
+struct Memo {
+    key: Option<(u32, u32)>,
+    q: f32,
+}
+
+impl Memo {
+    /// `outlet.discharge_m3s(h, a)`, evaluated only when `(h, a)` differs from the last call.
+    fn q(&mut self, outlet: &Outlet, h: f32, a: f32) -> f32 {
+        let key = (h.to_bits(), a.to_bits());
+        if self.key != Some(key) {
+            self.key = Some(key);
+            self.q = outlet.discharge_m3s(h, a);
+        }
+        self.q
+    }
+}
+
 fn sane(x: f32) -> f32 {
     if x.is_finite() && x > 0.0 { x } else { 0.0 }
 }
@@ -916,10 +935,13 @@ impl Controller {
         // Stage plausibility and filter.
         let prev_cmd = self.act.cmd_m();
         let last_stage = self.stage.filtered_m();
-        let release_prev = last_stage.map_or(0.0, |h| outlet.discharge_m3s(h, prev_cmd));
+        // The release at last step's stage matters only above the normal band, so it is
+        // evaluated only there (most steps of a dry spell skip it).
         let change_expected = self.runoff_inflow_m3s > EXPECTED_CHANGE_SHARE * target
-            || (release_prev > EXPECTED_CHANGE_SHARE * target
-                && last_stage.is_some_and(|h| h > normal_m + NORMAL_BAND_M));
+            || last_stage.is_some_and(|h| {
+                h > normal_m + NORMAL_BAND_M
+                    && outlet.discharge_m3s(h, prev_cmd) > EXPECTED_CHANGE_SHARE * target
+            });
         let so = self
             .stage
             .update(inputs.stage_m, now_s, sensors, change_expected);
@@ -986,11 +1008,16 @@ impl Controller {
         };
         let storage_m3 = self.est_storage_m3;
 
+        // The step asks for the outlet's release at the same stage and opening more than once
+        // (trend, the mode's opening, the release estimate); the outlet is a pure function,
+        // so the last answer is kept for the rest of the step.
+        let mut memo = Memo::default();
+
         // Trend: rising stage and the stage-based inflow estimate.
         if now_s.saturating_sub(self.trend_s) >= TREND_S {
             let span = now_s.saturating_sub(self.trend_s) as f32;
             if let (Some(s), Some(h)) = (storage_m3, stage_m) {
-                let q_out = outlet.discharge_m3s(h, position_m);
+                let q_out = memo.q(outlet, h, position_m);
                 match self.trend_storage_m3 {
                     Some(s0) => {
                         let area = pond.area_m2(h).max(1.0);
@@ -1066,7 +1093,7 @@ impl Controller {
         let (wanted_m, mut target_m3s, reason, mut urgent) = match self.mode {
             Mode::Manual => {
                 let a = self.manual.map_or(prev_cmd, |(a, _)| a);
-                (a, outlet.discharge_m3s(h, a), Reason::Manual, true)
+                (a, memo.q(outlet, h, a), Reason::Manual, true)
             }
             Mode::Surcharge => {
                 let (a, cap) = surcharge_opening();
@@ -1083,12 +1110,7 @@ impl Controller {
                     };
                     (a.max(safe), cap, Reason::Surcharge, true)
                 } else {
-                    (
-                        safe,
-                        outlet.discharge_m3s(h, safe),
-                        Reason::SafeOpening,
-                        true,
-                    )
+                    (safe, memo.q(outlet, h, safe), Reason::SafeOpening, true)
                 }
             }
             Mode::Standby | Mode::Capture | Mode::Drawdown => {
@@ -1100,7 +1122,7 @@ impl Controller {
                     // normal, so sensor noise about the normal level does not work it open
                     // and shut; water above the band is Drawdown's.
                     let a = self.act.goal_m();
-                    (a, outlet.discharge_m3s(h, a), Reason::Rest, false)
+                    (a, memo.q(outlet, h, a), Reason::Rest, false)
                 } else {
                     let (t, paced) = if self.mode == Mode::Drawdown {
                         self.drawdown_target_m3s(cfg, now_s, storage_m3.unwrap_or(0.0))
@@ -1128,12 +1150,12 @@ impl Controller {
         let guard_h = guard_m.unwrap_or(h);
         if !urgent
             && wanted_m < self.act.goal_m()
-            && outlet.discharge_m3s(h_lead, self.act.goal_m()) > 0.5 * (target + permit)
+            && memo.q(outlet, h_lead, self.act.goal_m()) > 0.5 * (target + permit)
         {
             urgent = true;
         }
         if !target_m3s.is_finite() {
-            target_m3s = outlet.discharge_m3s(h, max_open);
+            target_m3s = memo.q(outlet, h, max_open);
         }
         let a = self
             .act
@@ -1158,7 +1180,7 @@ impl Controller {
 
         // Release and permit exceedance.
         let release_m3s = if stage_m.is_some() {
-            outlet.discharge_m3s(guard_h, position_m)
+            memo.q(outlet, guard_h, position_m)
         } else {
             0.0
         };
