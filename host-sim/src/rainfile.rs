@@ -192,6 +192,9 @@ pub fn parse_iso(s: &str) -> Result<i64, String> {
         let (t, off) = time.split_at(i);
         let sign = if off.starts_with('-') { -1 } else { 1 };
         let digits: String = off[1..].chars().filter(|c| *c != ':').collect();
+        if !digits.bytes().all(|b| b.is_ascii_digit()) {
+            return Err(format!("time {s:?}: UTC offset {off:?} is not ±HH:MM"));
+        }
         let (oh, om) = match digits.len() {
             2 => (digits.as_str(), "0"),
             4 => digits.split_at(2),
@@ -555,6 +558,9 @@ mod tests {
             "2021-06-01T10:00:00.x",
             "2021-06-01T10:00:00+2",
             "2021-06-01T10:00:00+25:00",
+            // Found by the rain_file fuzz target: a non-ASCII offset of four bytes made the
+            // hour/minute split cut a character in two (a panic).
+            "2021-06-01T10:00-;\u{be}5",
         ] {
             assert!(parse_iso(bad).is_err(), "{bad}");
         }
