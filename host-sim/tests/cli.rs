@@ -20,6 +20,31 @@ fn text(b: &[u8]) -> String {
     String::from_utf8_lossy(b).into_owned()
 }
 
+/// `holdback replay POND ARGS... --out OUT`; the exit code must say the run was judged (0 or
+/// 1), not that the input was refused (2).
+fn replay(pond: &Path, args: &[&str], out: &Path) -> Output {
+    let o = bin()
+        .arg("replay")
+        .arg(pond)
+        .args(args)
+        .arg("--out")
+        .arg(out)
+        .output()
+        .expect("the binary runs");
+    assert!(
+        matches!(o.status.code(), Some(0 | 1)),
+        "{}",
+        text(&o.stderr)
+    );
+    o
+}
+
+/// The JSON summary of `policy` in a replay's output folder.
+fn summary(out: &Path, policy: &str) -> serde_json::Value {
+    let path = out.join(format!("summary-{policy}.json"));
+    serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap()
+}
+
 fn repo() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
 }
@@ -197,18 +222,18 @@ fn a_record_interval_longer_than_the_run_still_writes_the_end_state() {
     let dir = tempfile::tempdir().unwrap();
     let p = demo_file(dir.path());
     let out = dir.path().join("out");
-    let o = run(&[
-        "replay",
-        p.to_str().unwrap(),
-        "--design",
-        "2:30:uniform",
-        "--policy",
-        "fixed",
-        "--record-s",
-        "10000000",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    let o = replay(
+        &p,
+        &[
+            "--design",
+            "2:30:uniform",
+            "--policy",
+            "fixed",
+            "--record-s",
+            "10000000",
+        ],
+        &out,
+    );
     assert!(
         o.status.code().is_some_and(|c| c <= 1),
         "{}",
@@ -216,9 +241,7 @@ fn a_record_interval_longer_than_the_run_still_writes_the_end_state() {
     );
     let csv = std::fs::read_to_string(out.join("series-fixed.csv")).unwrap();
     assert_eq!(csv.lines().count(), 2, "{csv}");
-    let s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.join("summary-fixed.json")).unwrap())
-            .unwrap();
+    let s = summary(&out, "fixed");
     let last_t: f64 = csv
         .lines()
         .nth(1)
@@ -633,23 +656,20 @@ fn a_run_cut_short_before_the_runoff_has_arrived_is_not_judged_a_pass() {
     let dir = tempfile::tempdir().unwrap();
     let p = demo_file(dir.path());
     let out = dir.path().join("out");
-    let o = run(&[
-        "replay",
-        p.to_str().unwrap(),
-        "--design",
-        "10:60:chicago",
-        "--policy",
-        "controller",
-        "--tail-h",
-        "0.01",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
+    let o = replay(
+        &p,
+        &[
+            "--design",
+            "10:60:chicago",
+            "--policy",
+            "controller",
+            "--tail-h",
+            "0.01",
+        ],
+        &out,
+    );
     assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
-    let s: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(out.join("summary-controller.json")).unwrap(),
-    )
-    .unwrap();
+    let s = summary(&out, "controller");
     assert_eq!(s["pass"], false);
     for c in s["criteria"].as_array().unwrap() {
         if ["permit", "freeboard", "overtopping"].contains(&c["id"].as_str().unwrap()) {
@@ -670,24 +690,12 @@ fn storage_and_extrapolation_warnings_reach_the_summary() {
     let dir = tempfile::tempdir().unwrap();
     let p = demo_file(dir.path());
     let out = dir.path().join("out");
-    let o = run(&[
-        "replay",
-        p.to_str().unwrap(),
-        "--design",
-        "500:60:chicago",
-        "--policy",
-        "bound",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
-    assert!(
-        matches!(o.status.code(), Some(0 | 1)),
-        "{}",
-        text(&o.stderr)
+    let o = replay(
+        &p,
+        &["--design", "500:60:chicago", "--policy", "bound"],
+        &out,
     );
-    let s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.join("summary-bound.json")).unwrap())
-            .unwrap();
+    let s = summary(&out, "bound");
     let w: Vec<&str> = s["warnings"]
         .as_array()
         .unwrap()
@@ -787,20 +795,10 @@ fn a_us_customary_pond_file_is_the_same_pond() {
     let mut summaries = Vec::new();
     for (pond, name) in [(&si, "si"), (&us, "us")] {
         let out = dir.path().join(name);
-        let o = run(&[
-            "replay",
-            pond.to_str().unwrap(),
-            "--design",
-            "10:60:chicago",
-            "--policy",
-            "controller",
-            "--out",
-            out.to_str().unwrap(),
-        ]);
-        assert!(
-            matches!(o.status.code(), Some(0 | 1)),
-            "{}",
-            text(&o.stderr)
+        let o = replay(
+            &pond,
+            &["--design", "10:60:chicago", "--policy", "controller"],
+            &out,
         );
         summaries.push(std::fs::read_to_string(out.join("summary-controller.json")).unwrap());
     }
@@ -844,9 +842,7 @@ fn tip_times_replay_as_rain_of_one_bucket_each() {
     let err = text(&o.stderr);
     assert!(matches!(o.status.code(), Some(0 | 1)), "{err}");
     assert!(err.contains("300 rows read, 60.00 mm over 1.0 h"), "{err}");
-    let s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.join("summary-bound.json")).unwrap())
-            .unwrap();
+    let s = summary(&out, "bound");
     assert!((s["rain_mm"].as_f64().unwrap() - 60.0).abs() < 1e-9, "{s}");
 }
 
