@@ -690,7 +690,7 @@ fn storage_and_extrapolation_warnings_reach_the_summary() {
     let dir = tempfile::tempdir().unwrap();
     let p = demo_file(dir.path());
     let out = dir.path().join("out");
-    let o = replay(
+    replay(
         &p,
         &["--design", "500:60:chicago", "--policy", "bound"],
         &out,
@@ -795,8 +795,8 @@ fn a_us_customary_pond_file_is_the_same_pond() {
     let mut summaries = Vec::new();
     for (pond, name) in [(&si, "si"), (&us, "us")] {
         let out = dir.path().join(name);
-        let o = replay(
-            &pond,
+        replay(
+            pond,
             &["--design", "10:60:chicago", "--policy", "controller"],
             &out,
         );
