@@ -11,6 +11,8 @@ use crate::summary::{self, Summary};
 /// One batch row: the storm, the policy, the seed and the run's summary.
 #[derive(Debug, Clone)]
 pub struct BatchRow {
+    /// The pond-file settings this run changed (`--vary`), empty for the file as it is.
+    pub variant: String,
     /// The summary (its `policy` and `seed` say which run this is).
     pub summary: Summary,
     /// Passed every criterion.
@@ -74,6 +76,7 @@ pub fn run(
                     let s = summary::summarise(pond, storm, &r, seed, &o.faults, Some(&bound));
                     bar.inc(1);
                     BatchRow {
+                        variant: String::new(),
                         pass: s.pass,
                         summary: s,
                     }
@@ -110,8 +113,13 @@ pub fn table(rows: &[BatchRow]) -> String {
     for r in rows {
         let m = &r.summary;
         s.push_str(&format!(
-            "{:<36} {:<10} {:>4} {:>8.1} {:>9.3} {:>9.3} {:>8} {:>7} {:>7} {:>5}\n",
+            "{:<36} {:<24} {:<10} {:>4} {:>8.1} {:>9.3} {:>9.3} {:>8} {:>7} {:>7} {:>5}\n",
             m.storm,
+            if r.variant.is_empty() {
+                "as filed"
+            } else {
+                &r.variant
+            },
             m.policy,
             m.seed,
             m.rain_mm,
@@ -131,13 +139,14 @@ pub fn table(rows: &[BatchRow]) -> String {
 /// The batch table as CSV.
 pub fn csv(rows: &[BatchRow]) -> String {
     let mut s = String::from(
-        "storm,seed,policy,rain_mm,peak_stage_m,freeboard_left_m,peak_release_m3s,time_over_permit_s,volume_over_permit_m3,overtopped,drawdown_s,gate_moves,storage_ratio_to_bound,pass\n",
+        "storm,variant,seed,policy,rain_mm,peak_stage_m,freeboard_left_m,peak_release_m3s,time_over_permit_s,volume_over_permit_m3,overtopped,drawdown_s,gate_moves,storage_ratio_to_bound,pass\n",
     );
     for r in rows {
         let m = &r.summary;
         s.push_str(&format!(
-            "\"{}\",{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
+            "\"{}\",\"{}\",{},{},{},{},{},{},{},{},{},{},{},{},{}\n",
             m.storm.replace('"', "'"),
+            r.variant.replace('"', "'"),
             m.seed,
             m.policy,
             m.rain_mm,

@@ -130,6 +130,11 @@ enum Command {
         dt_s: u32,
         #[command(flatten)]
         sim: SimArgs,
+        /// Vary a pond-file setting: KEY=V1,V2,… with KEY dotted as the file writes it
+        /// (control.deadband_m=0.01,0.05; outlet.fixed[0].cd=0.6,0.62). Repeat for more keys:
+        /// every combination is run (at most 64).
+        #[arg(long = "vary", value_name = "KEY=V1,V2")]
+        vary: Vec<String>,
         /// Write the table as CSV here too.
         #[arg(long)]
         csv: Option<PathBuf>,
@@ -409,26 +414,60 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             seeds,
             dt_s,
             sim,
+            vary,
             csv,
         } => {
-            let mut p = load(&pond)?;
-            add_storage_check(&mut p, false);
-            for w in &p.warnings {
-                eprintln!("holdback: warning: {w}");
-            }
-            let opts = run_options(&p, &sim)?;
-            let mut storms_list = Vec::new();
-            for &t in &return_periods {
-                for &d in &durations_min {
-                    for &sh in &shapes {
-                        storms_list.push(storms::design(&p, t, d, dt_s, sh, 0.5).map_err(bad)?);
-                    }
-                }
-            }
+            let text = std::fs::read_to_string(&pond)
+                .map_err(|e| bad(format!("cannot read pond file {}: {e}", pond.display())))?;
+            let variants = variants(&vary)?;
             if sim.policy.is_empty() {
                 return Err(bad("--policy: name at least one policy to run"));
             }
-            let rows = batch::run(&p, &storms_list, &sim.policy, sim.seed, seeds.max(1), &opts);
+            // Every variant is loaded and checked before any runs, so a refused value costs
+            // nothing.
+            let mut ponds = Vec::new();
+            for v in &variants {
+                let label = v
+                    .iter()
+                    .map(ToString::to_string)
+                    .collect::<Vec<_>>()
+                    .join(" ");
+                let tag = if label.is_empty() {
+                    String::new()
+                } else {
+                    format!("[{label}] ")
+                };
+                let mut p = pondfile::load_str_with(&text, v).map_err(|ps| {
+                    bad(ps
+                        .iter()
+                        .map(|p| format!("error: {tag}{p}"))
+                        .collect::<Vec<_>>()
+                        .join("\n"))
+                })?;
+                add_storage_check(&mut p, false);
+                for w in &p.warnings {
+                    eprintln!("holdback: warning: {tag}{w}");
+                }
+                let opts = run_options(&p, &sim)?;
+                let mut storms_list = Vec::new();
+                for &t in &return_periods {
+                    for &d in &durations_min {
+                        for &sh in &shapes {
+                            storms_list.push(storms::design(&p, t, d, dt_s, sh, 0.5).map_err(bad)?);
+                        }
+                    }
+                }
+                ponds.push((label, p, opts, storms_list));
+            }
+            let mut rows = Vec::new();
+            for (label, p, opts, storms_list) in &ponds {
+                let mut these =
+                    batch::run(p, storms_list, &sim.policy, sim.seed, seeds.max(1), opts);
+                for r in &mut these {
+                    r.variant.clone_from(label);
+                }
+                rows.extend(these);
+            }
             let table = batch::table(&rows);
             print!("{table}");
             if let Some(c) = csv {
@@ -457,6 +496,44 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
             Ok(if failed > 0 { 1 } else { 0 })
         }
     }
+}
+
+/// Every combination of the `--vary KEY=V1,V2,…` settings (one empty variant without any).
+fn variants(vary: &[String]) -> Result<Vec<Vec<pondfile::Override>>, Fail> {
+    let mut out: Vec<Vec<pondfile::Override>> = vec![Vec::new()];
+    for spec in vary {
+        let (key, values) = spec.split_once('=').ok_or_else(|| {
+            bad(format!(
+                "--vary {spec:?}: write KEY=V1,V2,… (e.g. control.deadband_m=0.01,0.05)"
+            ))
+        })?;
+        let values: Vec<&str> = values.split(',').map(str::trim).collect();
+        if key.trim().is_empty() || values.iter().any(|v| v.is_empty()) {
+            return Err(bad(format!(
+                "--vary {spec:?}: a key and non-empty values are needed"
+            )));
+        }
+        out = out
+            .into_iter()
+            .flat_map(|v| {
+                values.iter().map(move |x| {
+                    let mut w = v.clone();
+                    w.push(pondfile::Override {
+                        key: key.trim().to_string(),
+                        value: (*x).to_string(),
+                    });
+                    w
+                })
+            })
+            .collect();
+        if out.len() > 64 {
+            return Err(bad(format!(
+                "--vary: {} combinations or more; at most 64",
+                out.len()
+            )));
+        }
+    }
+    Ok(out)
 }
 
 fn design_storm(p: &Pond, d: &DesignArgs) -> Result<Storm, Fail> {

@@ -1240,6 +1240,89 @@ pub fn load_path(path: &std::path::Path) -> Result<Pond, Vec<Problem>> {
     load_str(&text)
 }
 
+/// One setting to change in a pond file before it is loaded: a dotted key as the file writes
+/// it (`control.deadband_m`, `outlet.fixed[1].cd`) and a TOML value (`0.05`, `"frustum"`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Override {
+    /// The dotted key, with `[i]` for an entry of an array of tables.
+    pub key: String,
+    /// The value, as TOML.
+    pub value: String,
+}
+
+impl Override {
+    /// Reads `KEY=VALUE`.
+    pub fn parse(s: &str) -> Result<Self, String> {
+        let (k, v) = s
+            .split_once('=')
+            .ok_or_else(|| format!("{s:?}: write KEY=VALUE (e.g. control.deadband_m=0.05)"))?;
+        Ok(Self {
+            key: k.trim().to_string(),
+            value: v.trim().to_string(),
+        })
+    }
+}
+
+impl fmt::Display for Override {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}={}", self.key, self.value)
+    }
+}
+
+/// Sets one dotted key of a TOML tree; the table that holds it must exist in the file (the
+/// key itself may be new, as optional keys often are).
+fn set_key(tree: &mut toml::Value, o: &Override) -> Result<(), Problem> {
+    let value: toml::Value = toml::from_str::<toml::Table>(&format!("v = {}", o.value))
+        .ok()
+        .and_then(|mut t| t.remove("v"))
+        .ok_or_else(|| problem(&o.key, format!(" = {}: not a TOML value", o.value)))?;
+    let parts: Vec<&str> = o.key.split('.').collect();
+    let Some((last, path)) = parts.split_last() else {
+        return Err(problem(&o.key, ": empty key"));
+    };
+    let mut here = tree;
+    for part in path {
+        let (name, index) = match part.split_once('[') {
+            Some((n, rest)) => {
+                let i = rest
+                    .strip_suffix(']')
+                    .and_then(|i| i.parse::<usize>().ok())
+                    .ok_or_else(|| problem(&o.key, format!(": {part:?} is not NAME[INDEX]")))?;
+                (n, Some(i))
+            }
+            None => (*part, None),
+        };
+        let next = here
+            .get_mut(name)
+            .ok_or_else(|| problem(&o.key, format!(": the file has no {name:?} here")))?;
+        here = match index {
+            None => next,
+            Some(i) => next.get_mut(i).ok_or_else(|| {
+                problem(&o.key, format!(": the file has no entry {i} of {name:?}"))
+            })?,
+        };
+    }
+    let table = here
+        .as_table_mut()
+        .ok_or_else(|| problem(&o.key, ": does not lead to a table of the file"))?;
+    table.insert((*last).to_string(), value);
+    Ok(())
+}
+
+/// [`load_str`] of `text` with `overrides` applied first, each checked like the rest of the
+/// file (a refused value names its key).
+pub fn load_str_with(text: &str, overrides: &[Override]) -> Result<Pond, Vec<Problem>> {
+    if overrides.is_empty() {
+        return load_str(text);
+    }
+    let mut tree: toml::Value = toml::from_str(text).map_err(|e| vec![toml_problem(&e)])?;
+    for o in overrides {
+        set_key(&mut tree, o).map_err(|p| vec![p])?;
+    }
+    let changed = toml::to_string(&tree).map_err(|e| vec![problem("", e.to_string())])?;
+    load_str(&changed)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1288,6 +1371,39 @@ mod tests {
             let e = load_str(&text).unwrap_err();
             assert_eq!(e[0].to_string(), want);
         }
+    }
+
+    /// Overrides change the setting they name and are checked like the file: a new value
+    /// reaches the config, a bad one is refused by its key, a key whose table the file lacks
+    /// is refused.
+    #[test]
+    fn overrides_change_and_are_checked_like_the_file() {
+        let o = |s: &str| Override::parse(s).unwrap();
+        let p = load_str_with(
+            DEMO_POND,
+            &[o("control.deadband_m=0.05"), o("outlet.fixed[0].cd = 0.62")],
+        )
+        .unwrap();
+        assert_eq!(p.config.control().deadband_m, 0.05);
+        match p.config.outlet().fixed().first() {
+            Some(holdback_core::hydraulics::FixedStructure::CircularOrifice(c)) => {
+                assert_eq!(c.cd(), 0.62)
+            }
+            other => panic!("{other:?}"),
+        }
+        let e = load_str_with(DEMO_POND, &[o("outlet.gate.width_m=-1")]).unwrap_err();
+        assert!(
+            e[0].to_string().starts_with("outlet.gate.width_m = -1"),
+            "{e:?}"
+        );
+        let e = load_str_with(DEMO_POND, &[o("contrl.deadband_m=0.05")]).unwrap_err();
+        assert_eq!(
+            e[0].to_string(),
+            "contrl.deadband_m: the file has no \"contrl\" here"
+        );
+        let e = load_str_with(DEMO_POND, &[o("outlet.fixed[9].cd=0.6")]).unwrap_err();
+        assert!(e[0].to_string().contains("no entry 9"), "{e:?}");
+        assert!(Override::parse("control.deadband_m").is_err());
     }
 
     /// Mistakes in several parts of a file are all reported in one go (before, only the

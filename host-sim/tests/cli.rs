@@ -625,7 +625,8 @@ fn batch_runs_every_policy_listed_from_the_seed_given() {
     ]);
     let c = std::fs::read_to_string(&csv).unwrap();
     let rows: Vec<Vec<&str>> = c.lines().skip(1).map(|l| l.split(',').collect()).collect();
-    let runs: Vec<(&str, &str)> = rows.iter().map(|r| (r[2], r[1])).collect();
+    // Columns: storm, variant, seed, policy, …
+    let runs: Vec<(&str, &str)> = rows.iter().map(|r| (r[3], r[2])).collect();
     assert_eq!(
         runs,
         [
@@ -638,7 +639,7 @@ fn batch_runs_every_policy_listed_from_the_seed_given() {
     );
     let controller_failed = rows
         .iter()
-        .any(|r| r[2] == "controller" && r.last() == Some(&"false"));
+        .any(|r| r[3] == "controller" && r.last() == Some(&"false"));
     assert_eq!(
         o.status.code(),
         Some(if controller_failed { 1 } else { 0 }),
@@ -646,6 +647,68 @@ fn batch_runs_every_policy_listed_from_the_seed_given() {
         text(&o.stderr)
     );
     assert!(text(&o.stdout).contains("fixed"), "{}", text(&o.stdout));
+}
+
+/// `batch --vary` runs every combination of the pond-file settings given (the "settings" of
+/// storms × settings): each variant is named in the table and the CSV, and a value the pond
+/// file would refuse is refused with its key before anything runs.
+#[test]
+fn batch_varies_pond_file_settings() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    let csv = dir.path().join("batch.csv");
+    let o = run(&[
+        "batch",
+        p.to_str().unwrap(),
+        "--return-periods",
+        "2",
+        "--durations-min",
+        "60",
+        "--policy",
+        "controller",
+        "--vary",
+        "control.deadband_m=0.01,0.05",
+        "--vary",
+        "permit.margin=0.05,0.1",
+        "--tail-h",
+        "24",
+        "--csv",
+        csv.to_str().unwrap(),
+    ]);
+    assert!(
+        matches!(o.status.code(), Some(0 | 1)),
+        "{}",
+        text(&o.stderr)
+    );
+    let c = std::fs::read_to_string(&csv).unwrap();
+    let variants: Vec<&str> = c
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').nth(1).unwrap())
+        .collect();
+    assert_eq!(
+        variants,
+        [
+            "\"control.deadband_m=0.01 permit.margin=0.05\"",
+            "\"control.deadband_m=0.01 permit.margin=0.1\"",
+            "\"control.deadband_m=0.05 permit.margin=0.05\"",
+            "\"control.deadband_m=0.05 permit.margin=0.1\"",
+        ],
+        "{c}"
+    );
+    assert!(text(&o.stdout).contains("control.deadband_m=0.05"));
+    let o = run(&[
+        "batch",
+        p.to_str().unwrap(),
+        "--vary",
+        "outlet.gate.width_m=0.6,-0.4",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        text(&o.stderr).contains("[outlet.gate.width_m=-0.4] outlet.gate.width_m = -0.4"),
+        "{}",
+        text(&o.stderr)
+    );
 }
 
 /// A replay cut short by `--tail-h` while runoff is still arriving never reads as a pass:
