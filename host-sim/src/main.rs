@@ -131,7 +131,7 @@ enum Command {
         #[command(flatten)]
         sim: SimArgs,
         /// Vary a pond-file setting: KEY=V1,V2,… with KEY dotted as the file writes it
-        /// (control.deadband_m=0.01,0.05; outlet.fixed[0].cd=0.6,0.62). Repeat for more keys:
+        /// (`control.deadband_m=0.01,0.05`; `outlet.fixed[0].cd=0.6,0.62`). Repeat for more keys:
         /// every combination is run (at most 64).
         #[arg(long = "vary", value_name = "KEY=V1,V2")]
         vary: Vec<String>,
