@@ -98,8 +98,9 @@ pub fn run(
 /// The batch table (fixed-width text).
 pub fn table(rows: &[BatchRow]) -> String {
     let mut s = format!(
-        "{:<36} {:<10} {:>4} {:>8} {:>9} {:>9} {:>8} {:>7} {:>7} {:>5}\n",
+        "{:<36} {:<24} {:<10} {:>4} {:>8} {:>9} {:>9} {:>8} {:>7} {:>7} {:>5}\n",
         "storm",
+        "variant",
         "policy",
         "seed",
         "rain_mm",

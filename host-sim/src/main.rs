@@ -260,13 +260,16 @@ fn main() -> ExitCode {
 }
 
 fn load(path: &Path) -> Result<Pond, Fail> {
-    pondfile::load_path(path).map_err(|ps| {
-        bad(ps
-            .iter()
-            .map(|p| format!("error: {p}"))
-            .collect::<Vec<_>>()
-            .join("\n"))
-    })
+    pondfile::load_path(path).map_err(|ps| refused(&ps, ""))
+}
+
+/// A pond file's problems, one `error:` line each, `tag` before each (the `--vary` variant).
+fn refused(problems: &[pondfile::Problem], tag: &str) -> Fail {
+    bad(problems
+        .iter()
+        .map(|p| format!("error: {tag}{p}"))
+        .collect::<Vec<_>>()
+        .join("\n"))
 }
 
 fn dispatch(cmd: Command) -> Result<u8, Fail> {
@@ -437,13 +440,7 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
                 } else {
                     format!("[{label}] ")
                 };
-                let mut p = pondfile::load_str_with(&text, v).map_err(|ps| {
-                    bad(ps
-                        .iter()
-                        .map(|p| format!("error: {tag}{p}"))
-                        .collect::<Vec<_>>()
-                        .join("\n"))
-                })?;
+                let mut p = pondfile::load_str_with(&text, v).map_err(|ps| refused(&ps, &tag))?;
                 add_storage_check(&mut p, false);
                 for w in &p.warnings {
                     eprintln!("holdback: warning: {tag}{w}");
@@ -502,13 +499,14 @@ fn dispatch(cmd: Command) -> Result<u8, Fail> {
 fn variants(vary: &[String]) -> Result<Vec<Vec<pondfile::Override>>, Fail> {
     let mut out: Vec<Vec<pondfile::Override>> = vec![Vec::new()];
     for spec in vary {
-        let (key, values) = spec.split_once('=').ok_or_else(|| {
+        let o = pondfile::Override::parse(spec).map_err(|_| {
             bad(format!(
                 "--vary {spec:?}: write KEY=V1,V2,… (e.g. control.deadband_m=0.01,0.05)"
             ))
         })?;
-        let values: Vec<&str> = values.split(',').map(str::trim).collect();
-        if key.trim().is_empty() || values.iter().any(|v| v.is_empty()) {
+        let values: Vec<&str> = o.value.split(',').map(str::trim).collect();
+        let key = &o.key;
+        if key.is_empty() || values.iter().any(|v| v.is_empty()) {
             return Err(bad(format!(
                 "--vary {spec:?}: a key and non-empty values are needed"
             )));
@@ -519,7 +517,7 @@ fn variants(vary: &[String]) -> Result<Vec<Vec<pondfile::Override>>, Fail> {
                 values.iter().map(move |x| {
                     let mut w = v.clone();
                     w.push(pondfile::Override {
-                        key: key.trim().to_string(),
+                        key: key.clone(),
                         value: (*x).to_string(),
                     });
                     w

@@ -1090,6 +1090,7 @@ fn warnings(f: &File, pond: &Pond) -> Vec<String> {
             c.persistence_s, c.horizon_s
         ));
     }
+    // A tenth of the working depth: common practice, no source.
     let depth = cfg.levels().crest_m - cfg.levels().normal_m;
     if c.deadband_m > 0.1 * depth {
         w.push(format!(

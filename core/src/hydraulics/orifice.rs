@@ -117,9 +117,10 @@ impl CircularOrifice {
     /// With `u = y/D`, the angle is `θ = 4·asin(√u) = 4·atan(√(u/(1 − u)))` and
     /// `sin θ = 4·(1 − 2u)·√(u(1 − u))` (double-angle identities), so one f32 arc tangent and
     /// square roots replace `acos` and `sin` (libm's `asinf` takes an f64 square root, which
-    /// costs the device a software double routine). Below `θ = 1` the difference `θ − sin θ` is taken from its Taylor series to the
-    /// `θ¹³` term (truncation under 1e-12 relative there), which keeps full f32 precision at
-    /// the shallow depths where the direct difference cancels.
+    /// costs the device a software double routine). Below `θ = 1` the difference `θ − sin θ`
+    /// is taken from its Taylor series to the `θ¹³` term (truncation under 1e-12 relative
+    /// there), which keeps full f32 precision at the shallow depths where the direct
+    /// difference cancels.
     #[inline]
     fn wetted_area_m2(&self, y: f32) -> f32 {
         let d = self.diameter_m;
