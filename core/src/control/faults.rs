@@ -80,7 +80,7 @@ faults! {
 const N_FAULTS: usize = Fault::ALL.len();
 
 impl Fault {
-    const fn bit(self) -> u16 {
+    pub(crate) const fn bit(self) -> u16 {
         1u16 << (self as u8)
     }
 }

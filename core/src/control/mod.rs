@@ -487,6 +487,21 @@ impl Controller {
         }
     }
 
+    /// [`Self::fault`] for each of `seen` in order. A group with none present and none
+    /// active changes nothing (a quiet count runs only for an active fault), so it is
+    /// passed over as a whole: the usual step of a healthy device.
+    fn faults_seen(&mut self, seen: &[(Fault, bool)]) {
+        let (any, mask) = seen
+            .iter()
+            .fold((false, 0u16), |(a, m), (f, p)| (a || *p, m | f.bit()));
+        if !any && self.faults.active().0 & mask == 0 {
+            return;
+        }
+        for (f, p) in seen {
+            self.fault(*f, *p);
+        }
+    }
+
     fn command(&mut self, cfg: &PondConfig, cmd: Option<Command>, now_s: u32) {
         match cmd {
             None => {}
@@ -945,13 +960,15 @@ impl Controller {
         let so = self
             .stage
             .update(inputs.stage_m, now_s, sensors, change_expected);
-        self.fault(Fault::StageUnderRange, so.under_range);
-        self.fault(Fault::StageOverRange, so.over_range);
-        self.fault(Fault::StageMissing, so.missing);
-        self.fault(Fault::StageStuck, so.stuck);
-        self.fault(Fault::StageSpike, so.spike);
-        self.fault(Fault::StageRate, so.rate);
-        self.fault(Fault::StageErratic, so.erratic);
+        self.faults_seen(&[
+            (Fault::StageUnderRange, so.under_range),
+            (Fault::StageOverRange, so.over_range),
+            (Fault::StageMissing, so.missing),
+            (Fault::StageStuck, so.stuck),
+            (Fault::StageSpike, so.spike),
+            (Fault::StageRate, so.rate),
+            (Fault::StageErratic, so.erratic),
+        ]);
 
         // Gate supervision (against last step's command).
         let go = self.gate.update(
@@ -964,16 +981,20 @@ impl Controller {
             now_s,
             sensors,
         );
-        self.fault(Fault::GateStall, go.stall);
-        self.fault(Fault::GateDisagree, go.disagree);
-        self.fault(Fault::GateLimitConflict, go.limit_conflict);
-        self.fault(Fault::GateDriver, go.driver);
-        self.fault(Fault::GatePositionMissing, go.position_missing);
+        self.faults_seen(&[
+            (Fault::GateStall, go.stall),
+            (Fault::GateDisagree, go.disagree),
+            (Fault::GateLimitConflict, go.limit_conflict),
+            (Fault::GateDriver, go.driver),
+            (Fault::GatePositionMissing, go.position_missing),
+        ]);
 
         // Rain gauge health.
         let status = self.gauge.as_mut().map(|g| g.step(now_s, self.rising));
-        self.fault(Fault::RainClogged, status.is_some_and(|s| s.clogged));
-        self.fault(Fault::RainChatter, status.is_some_and(|s| s.chatter));
+        self.faults_seen(&[
+            (Fault::RainClogged, status.is_some_and(|s| s.clogged)),
+            (Fault::RainChatter, status.is_some_and(|s| s.chatter)),
+        ]);
 
         let faults = self.faults.active();
         let position_m = match inputs.gate_position_m {
