@@ -36,11 +36,30 @@ impl Rng {
     pub fn uniform(&mut self) -> f64 {
         (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
     }
-    /// Standard normal (Box–Muller).
+    /// Standard normal: the ziggurat method of `rand_distr` (Marsaglia & Tsang 2000, as
+    /// modified by Doornik 2005) on this generator's bits. About a tenth of the cost of the
+    /// Box–Muller transform used before (a logarithm and a cosine per sample), which was a
+    /// twelfth of a quiet step of a long replay; the sequence is a different one.
     pub fn normal(&mut self) -> f64 {
-        let u1 = self.uniform().max(1e-300);
-        let u2 = self.uniform();
-        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
+        rand_distr::Distribution::<f64>::sample(&rand_distr::StandardNormal, self)
+    }
+}
+
+/// The generator as a source of bits for `rand_distr`.
+impl rand_core::TryRng for Rng {
+    type Error = core::convert::Infallible;
+    fn try_next_u32(&mut self) -> Result<u32, Self::Error> {
+        Ok((self.next_u64() >> 32) as u32)
+    }
+    fn try_next_u64(&mut self) -> Result<u64, Self::Error> {
+        Ok(self.next_u64())
+    }
+    fn try_fill_bytes(&mut self, dst: &mut [u8]) -> Result<(), Self::Error> {
+        for chunk in dst.chunks_mut(8) {
+            let bits = self.next_u64().to_le_bytes();
+            chunk.copy_from_slice(&bits[..chunk.len()]);
+        }
+        Ok(())
     }
 }
 
@@ -1062,6 +1081,32 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The sensor noise is standard normal: over 400,000 seeded draws the mean is 0 and the
+    /// variance 1 within their sampling error (4.5 standard errors), and the shares within
+    /// one and two standard deviations are Φ(1) − Φ(−1) = 0.682689 and
+    /// Φ(2) − Φ(−2) = 0.954500 (the standard normal distribution, from memory; recomputed
+    /// here with `erf` of the libm crate) within 0.003.
+    #[test]
+    fn noise_is_standard_normal() {
+        let n = 400_000;
+        let mut rng = Rng::new(11);
+        let xs: Vec<f64> = (0..n).map(|_| rng.normal()).collect();
+        let mean = xs.iter().sum::<f64>() / n as f64;
+        let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1) as f64;
+        let se = 1.0 / (n as f64).sqrt();
+        assert!(mean.abs() < 4.5 * se, "mean {mean}");
+        // The variance of a sample variance of normal data is 2/(n − 1).
+        assert!(
+            (var - 1.0).abs() < 4.5 * (2.0 / (n - 1) as f64).sqrt(),
+            "variance {var}"
+        );
+        for (k, want) in [(1.0, 0.682_689), (2.0, 0.954_500)] {
+            assert!((libm::erf(k / std::f64::consts::SQRT_2) - want).abs() < 1e-6);
+            let share = xs.iter().filter(|x| x.abs() < k).count() as f64 / n as f64;
+            assert!((share - want).abs() < 0.003, "within {k}: {share}");
+        }
+    }
 
     /// The quantiser's rounding is `f64::round` bit for bit (half away from zero, signed
     /// zeros, NaN, infinities and values past 2^52), so replacing the library call changed
