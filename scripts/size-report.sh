@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # Flash and static RAM of a firmware ELF, checked against the project's budget.
 #
-#   scripts/size-report.sh [ELF]    (default: the release qemu_board image)
+#   scripts/size-report.sh [ELF]    (default: the device-profile qemu_board image)
 #
 # flash      = .vector_table + .text + .rodata + .data (the initialised data's load image)
 # static RAM = .data + .bss + .uninit + STACK_RESERVE_BYTES
@@ -16,7 +16,7 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
-elf=${1:-target/thumbv7em-none-eabihf/release/qemu_board}
+elf=${1:-target/thumbv7em-none-eabihf/device/qemu_board}
 flash_budget=${FLASH_BUDGET_BYTES:-$((48 * 1024))}
 ram_budget=${RAM_BUDGET_BYTES:-$((12 * 1024))}
 stack=${STACK_RESERVE_BYTES:-0}

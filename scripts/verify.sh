@@ -17,8 +17,8 @@ step "clippy, no_std crates on thumbv7em-none-eabihf (with and without defmt)"
 cargo clippy -p holdback-core -p holdback-firmware --target thumbv7em-none-eabihf --locked -- -D warnings
 cargo clippy -p holdback-core -p holdback-firmware --target thumbv7em-none-eabihf --locked --features holdback-core/defmt,holdback-firmware/defmt -- -D warnings
 
-step "build holdback-core for thumbv7em-none-eabihf (no std), release"
-cargo build -p holdback-core --target thumbv7em-none-eabihf --release --locked
+step "build holdback-core for thumbv7em-none-eabihf (no std), device profile"
+cargo build -p holdback-core --target thumbv7em-none-eabihf --profile device --locked
 
 step "docs build without warnings"
 RUSTDOCFLAGS="-D warnings" cargo doc --workspace --no-deps --locked --quiet
@@ -29,10 +29,10 @@ cargo test --workspace --locked
 step "benchmarks compile (run them with: cargo bench -p holdback-tests)"
 cargo bench -p holdback-tests --no-run --locked --quiet
 
-step "reference board: clippy and release image for thumbv7em-none-eabihf (mps2-an386)"
+step "reference board: clippy and device-profile image for thumbv7em-none-eabihf (mps2-an386)"
 cargo clippy -p holdback-firmware --target thumbv7em-none-eabihf --features board-qemu --locked -- -D warnings
-cargo build -p holdback-firmware --target thumbv7em-none-eabihf --features board-qemu --release --locked
-board_elf="$PWD/target/thumbv7em-none-eabihf/release/qemu_board"
+cargo build -p holdback-firmware --target thumbv7em-none-eabihf --features board-qemu --profile device --locked
+board_elf="$PWD/target/thumbv7em-none-eabihf/device/qemu_board"
 
 step "reference board under QEMU: host and device compute the same math bits"
 HOLDBACK_BOARD_ELF="$board_elf" cargo test -p holdback-tests --test qemu_board --locked -- --ignored

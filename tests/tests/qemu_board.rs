@@ -2,7 +2,7 @@
 //! FPU) must compute the same `holdback_core::math` bits as this x86-64 host (libm's
 //! `sqrtf`, SSE).
 //!
-//! These tests boot the real release ELF with `scripts/qemu-run.sh`, so they need
+//! These tests boot the real device-profile ELF with `scripts/qemu-run.sh`, so they need
 //! `qemu-system-arm` and the built image: they are `#[ignore]`d in a plain `cargo test` and
 //! `scripts/verify.sh` runs them with `HOLDBACK_BOARD_ELF` set to the ELF's path. Wire format
 //! and exit codes: `firmware/src/bin/qemu_board/`.
@@ -32,7 +32,7 @@ const KERNELS: [Kernel; 4] = [
 
 fn elf() -> PathBuf {
     PathBuf::from(std::env::var_os("HOLDBACK_BOARD_ELF").expect(
-        "HOLDBACK_BOARD_ELF must name the qemu_board release ELF (scripts/verify.sh sets it)",
+        "HOLDBACK_BOARD_ELF must name the qemu_board device-profile ELF (scripts/verify.sh sets it)",
     ))
 }
 

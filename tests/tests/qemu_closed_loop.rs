@@ -235,7 +235,7 @@ fn corrupted_blob_holds_the_fallback_opening_with_an_alarm() {
 
 fn elf() -> PathBuf {
     PathBuf::from(std::env::var_os("HOLDBACK_BOARD_ELF").expect(
-        "HOLDBACK_BOARD_ELF must name the qemu_board release ELF (scripts/verify.sh sets it)",
+        "HOLDBACK_BOARD_ELF must name the qemu_board device-profile ELF (scripts/verify.sh sets it)",
     ))
 }
 
