@@ -125,6 +125,15 @@ fn main() {
             r.gate_moves,
             fingerprint(&r)
         );
+        // Never hidden: every time the controller logged the release over the permit, with
+        // its reason and the time into the record.
+        for e in r.events.iter().filter(|e| e.kind == "permit-exceedance") {
+            println!(
+                "  permit exceedance at day {:.3} of the record: {}",
+                e.t_s as f64 / 86_400.0,
+                e.detail
+            );
+        }
     }
 }
 
