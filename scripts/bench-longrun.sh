@@ -1,0 +1,53 @@
+#!/usr/bin/env bash
+# The long-record benchmark of issue #5, timed (host-sim/BENCH.md): a century of 1-minute rain
+# replayed with the controller every step, against the 10 s target, and the Python/numpy
+# level-pool loop of the same routing as a baseline (its ratio to both Rust replays).
+#
+#   scripts/bench-longrun.sh [DWD_CSV] [YEARS] [RUNS]   # defaults: the shared DWD file, 100, 3
+#
+# CPU seconds (`/usr/bin/time`, user) of whole processes, best of RUNS; the baseline needs
+# python3 with numpy and is skipped without it. Not part of verify.sh: it takes minutes.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+csv=${1:-../shared/data/rain/dwd_01684_goerlitz_5min_1991-2020.csv}
+years=${2:-100}
+runs=${3:-3}
+cargo build --release -p holdback-sim --example longrun >/dev/null 2>&1
+bin=target/release/examples/longrun
+out=$(mktemp -d)
+trap 'rm -rf "$out"' EXIT
+
+best_cpu() { # policy -> "cpu_s ns_per_step"
+    local best=""
+    for _ in $(seq "$runs"); do
+        LONGRUN_POLICY=$1 /usr/bin/time -f '%U' -o "$out/t" "$bin" "$csv" "$years" >"$out/o" 2>/dev/null
+        local cpu
+        cpu=$(cat "$out/t")
+        if [ -z "$best" ] || awk -v a="$cpu" -v b="$best" 'BEGIN{exit !(a < b)}'; then
+            best=$cpu
+            steps=$(sed -n 's/.*(\([0-9]*\) steps).*/\1/p' "$out/o")
+            grep -o 'permit exceedance.*' "$out/o" >"$out/$1.exceed" || true
+        fi
+    done
+    echo "$best $(awk -v c="$best" -v n="$steps" 'BEGIN{printf "%.0f", c * 1e9 / n}')"
+}
+
+read -r c_cpu c_ns <<<"$(best_cpu controller)"
+read -r f_cpu f_ns <<<"$(best_cpu fixed)"
+printf '%-34s %10s %12s\n' run "CPU s" "ns per step"
+printf '%-34s %10s %12s\n' "controller every step, $years years" "$c_cpu" "$c_ns"
+printf '%-34s %10s %12s\n' "fixed outlet, $years years" "$f_cpu" "$f_ns"
+awk -v c="$c_cpu" -v y="$years" 'BEGIN{t = c * 100 / y; printf "century with the controller: %.1f s of CPU against the 10 s target: %s\n", t, (t < 10 ? "met" : "MISSED")}'
+if [ -s "$out/controller.exceed" ]; then
+    echo "controller-logged permit exceedances:"
+    cat "$out/controller.exceed"
+fi
+
+if python3 -c 'import numpy' 2>/dev/null; then
+    "$bin" "$csv" 1 "$out/in" >/dev/null 2>&1
+    p_ns=$(for _ in $(seq "$runs"); do python3 host-sim/bench/level_pool.py "$out/in" 1; done |
+        sed -n 's/.*(\([0-9]*\) ns per step).*/\1/p' | sort -n | head -1)
+    awk -v p="$p_ns" -v c="$c_ns" -v f="$f_ns" 'BEGIN{printf "python/numpy loop: %d ns per step; Rust is %.1fx faster (fixed outlet), %.1fx (controller)\n", p, p / f, p / c}'
+else
+    echo "python/numpy baseline skipped: no numpy (pip install numpy)"
+fi
