@@ -119,12 +119,6 @@ pub fn cos(x: f32) -> f32 {
     libm::cosf(x)
 }
 
-/// Arc tangent in radians (libm `atanf`, f32 throughout); ±∞ gives ±π/2.
-#[inline]
-pub fn atan(x: f32) -> f32 {
-    libm::atanf(x)
-}
-
 /// Arc cosine in radians (libm `acosf`); input outside [-1, 1] gives NaN.
 #[inline]
 pub fn acos(x: f32) -> f32 {
