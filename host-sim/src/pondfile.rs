@@ -108,140 +108,250 @@ enum StorageFile {
     },
 }
 
-#[derive(Debug, Deserialize)]
-#[serde(tag = "kind", rename_all = "kebab-case", deny_unknown_fields)]
+/// One `[[outlet.fixed]]` or `[[existing.fixed]]` entry, by its `kind`. Each kind is read
+/// as its own struct (see [`read_structure`]), so that a wrong value names its key
+/// (`outlet.fixed[0].diameter_m`); serde's tagged enums buffer the entry and lose the path.
+#[derive(Debug)]
 enum StructureFile {
-    CircularOrifice {
-        invert_m: f32,
-        diameter_m: f32,
-        cd: f32,
-    },
-    RectangularOrifice {
-        invert_m: f32,
-        width_m: f32,
-        height_m: f32,
-        cd: f32,
-    },
-    RectangularWeir {
-        crest_m: f32,
-        width_m: f32,
-        cd: f32,
-        #[serde(default)]
-        end_contractions: u8,
-    },
-    VNotchWeir {
-        crest_m: f32,
-        angle_deg: f32,
-        cd: f32,
-    },
-    BroadCrestedWeir {
-        crest_m: f32,
-        width_m: f32,
-        cd: f32,
-    },
-    RiserCircular {
-        crest_m: f32,
-        diameter_m: f32,
-        weir_cd: f32,
-        orifice_cd: f32,
-    },
-    RiserRectangular {
-        crest_m: f32,
-        length_m: f32,
-        width_m: f32,
-        weir_cd: f32,
-        orifice_cd: f32,
-    },
-    Spillway {
-        crest_m: f32,
-        bottom_width_m: f32,
-        side_slope_h_per_v: f32,
-        cd: f32,
-    },
+    CircularOrifice(CircularOrificeFile),
+    RectangularOrifice(RectangularOrificeFile),
+    RectangularWeir(RectangularWeirFile),
+    VNotchWeir(VNotchWeirFile),
+    BroadCrestedWeir(BroadCrestedWeirFile),
+    RiserCircular(RiserCircularFile),
+    RiserRectangular(RiserRectangularFile),
+    Spillway(SpillwayFile),
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct CircularOrificeFile {
+    invert_m: f32,
+    diameter_m: f32,
+    cd: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RectangularOrificeFile {
+    invert_m: f32,
+    width_m: f32,
+    height_m: f32,
+    cd: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RectangularWeirFile {
+    crest_m: f32,
+    width_m: f32,
+    cd: f32,
+    #[serde(default)]
+    end_contractions: u8,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct VNotchWeirFile {
+    crest_m: f32,
+    angle_deg: f32,
+    cd: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct BroadCrestedWeirFile {
+    crest_m: f32,
+    width_m: f32,
+    cd: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RiserCircularFile {
+    crest_m: f32,
+    diameter_m: f32,
+    weir_cd: f32,
+    orifice_cd: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RiserRectangularFile {
+    crest_m: f32,
+    length_m: f32,
+    width_m: f32,
+    weir_cd: f32,
+    orifice_cd: f32,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct SpillwayFile {
+    crest_m: f32,
+    bottom_width_m: f32,
+    side_slope_h_per_v: f32,
+    cd: f32,
+}
+
+/// The structure kinds a pond file may name, as it names them.
+const STRUCTURE_KINDS: &str = "circular-orifice, rectangular-orifice, rectangular-weir, \
+    v-notch-weir, broad-crested-weir, riser-circular, riser-rectangular or spillway";
+
+/// Reads one structure entry at `path` (`outlet.fixed[2]`): its `kind`, then the kind's own
+/// settings, each error naming the key it is about.
+fn read_structure(v: &toml::Value, path: &str) -> Result<StructureFile, Problem> {
+    let Some(table) = v.as_table() else {
+        return Err(problem(
+            path,
+            format!(": must be a table with a kind, found a {}", v.type_str()),
+        ));
+    };
+    let mut t = table.clone();
+    let kind = match t.remove("kind") {
+        Some(toml::Value::String(k)) => k,
+        Some(other) => {
+            return Err(problem(
+                format!("{path}.kind"),
+                format!(" = {other}: must be one of {STRUCTURE_KINDS}"),
+            ));
+        }
+        None => {
+            return Err(problem(
+                format!("{path}.kind"),
+                format!(": missing; write one of {STRUCTURE_KINDS}"),
+            ));
+        }
+    };
+    fn settings<T: serde::de::DeserializeOwned>(t: toml::Table, path: &str) -> Result<T, Problem> {
+        serde_path_to_error::deserialize(toml::Value::Table(t)).map_err(
+            |e: serde_path_to_error::Error<toml::de::Error>| {
+                let key = e.path().to_string();
+                let msg = e.inner().message().trim().to_string();
+                if key == "." || key.is_empty() {
+                    problem(path, format!(": {msg}"))
+                } else {
+                    problem(format!("{path}.{key}"), format!(": {msg}"))
+                }
+            },
+        )
+    }
+    Ok(match kind.as_str() {
+        "circular-orifice" => StructureFile::CircularOrifice(settings(t, path)?),
+        "rectangular-orifice" => StructureFile::RectangularOrifice(settings(t, path)?),
+        "rectangular-weir" => StructureFile::RectangularWeir(settings(t, path)?),
+        "v-notch-weir" => StructureFile::VNotchWeir(settings(t, path)?),
+        "broad-crested-weir" => StructureFile::BroadCrestedWeir(settings(t, path)?),
+        "riser-circular" => StructureFile::RiserCircular(settings(t, path)?),
+        "riser-rectangular" => StructureFile::RiserRectangular(settings(t, path)?),
+        "spillway" => StructureFile::Spillway(settings(t, path)?),
+        other => {
+            return Err(problem(
+                format!("{path}.kind"),
+                format!(" = \"{other}\": must be one of {STRUCTURE_KINDS}"),
+            ));
+        }
+    })
+}
+
+/// Every entry of a structure list, the problems of all of them together.
+fn read_structures(
+    list: &[toml::Value],
+    at: &str,
+    problems: &mut Vec<Problem>,
+) -> Vec<StructureFile> {
+    let mut out = Vec::new();
+    for (i, v) in list.iter().enumerate() {
+        match read_structure(v, &format!("{at}[{i}]")) {
+            Ok(s) => out.push(s),
+            Err(p) => problems.push(p),
+        }
+    }
+    out
 }
 
 impl StructureFile {
     fn spec(&self) -> StructureSpec {
         match *self {
-            StructureFile::CircularOrifice {
+            StructureFile::CircularOrifice(CircularOrificeFile {
                 invert_m,
                 diameter_m,
                 cd,
-            } => StructureSpec::CircularOrifice {
+            }) => StructureSpec::CircularOrifice {
                 invert_m,
                 diameter_m,
                 cd,
             },
-            StructureFile::RectangularOrifice {
-                invert_m,
-                width_m,
-                height_m,
-                cd,
-            } => StructureSpec::RectangularOrifice {
+            StructureFile::RectangularOrifice(RectangularOrificeFile {
                 invert_m,
                 width_m,
                 height_m,
                 cd,
+            }) => StructureSpec::RectangularOrifice {
+                invert_m,
+                width_m,
+                height_m,
+                cd,
             },
-            StructureFile::RectangularWeir {
+            StructureFile::RectangularWeir(RectangularWeirFile {
                 crest_m,
                 width_m,
                 cd,
                 end_contractions,
-            } => StructureSpec::RectangularWeir {
+            }) => StructureSpec::RectangularWeir {
                 crest_m,
                 width_m,
                 cd,
                 end_contractions,
             },
-            StructureFile::VNotchWeir {
+            StructureFile::VNotchWeir(VNotchWeirFile {
                 crest_m,
                 angle_deg,
                 cd,
-            } => StructureSpec::VNotchWeir {
+            }) => StructureSpec::VNotchWeir {
                 crest_m,
                 angle_deg,
                 cd,
             },
-            StructureFile::BroadCrestedWeir {
+            StructureFile::BroadCrestedWeir(BroadCrestedWeirFile {
                 crest_m,
                 width_m,
                 cd,
-            } => StructureSpec::BroadCrestedWeir {
+            }) => StructureSpec::BroadCrestedWeir {
                 crest_m,
                 width_m,
                 cd,
             },
-            StructureFile::RiserCircular {
+            StructureFile::RiserCircular(RiserCircularFile {
                 crest_m,
                 diameter_m,
                 weir_cd,
                 orifice_cd,
-            } => StructureSpec::RiserCircular {
+            }) => StructureSpec::RiserCircular {
                 crest_m,
                 diameter_m,
                 weir_cd,
                 orifice_cd,
             },
-            StructureFile::RiserRectangular {
+            StructureFile::RiserRectangular(RiserRectangularFile {
                 crest_m,
                 length_m,
                 width_m,
                 weir_cd,
                 orifice_cd,
-            } => StructureSpec::RiserRectangular {
+            }) => StructureSpec::RiserRectangular {
                 crest_m,
                 length_m,
                 width_m,
                 weir_cd,
                 orifice_cd,
             },
-            StructureFile::Spillway {
+            StructureFile::Spillway(SpillwayFile {
                 crest_m,
                 bottom_width_m,
                 side_slope_h_per_v,
                 cd,
-            } => StructureSpec::Spillway {
+            }) => StructureSpec::Spillway {
                 crest_m,
                 bottom_width_m,
                 side_slope_h_per_v,
@@ -273,8 +383,9 @@ fn default_cv() -> f32 {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct OutletFile {
+    /// Read entry by entry ([`read_structure`]).
     #[serde(default)]
-    fixed: Vec<StructureFile>,
+    fixed: Vec<toml::Value>,
     gate: GateFile,
     #[serde(default)]
     tailwater_m: Option<f32>,
@@ -283,7 +394,8 @@ struct OutletFile {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct ExistingFile {
-    fixed: Vec<StructureFile>,
+    /// Read entry by entry ([`read_structure`]).
+    fixed: Vec<toml::Value>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -875,6 +987,15 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
         )]);
     }
     let one = |p: Problem| vec![p];
+    let mut problems = Vec::new();
+    let outlet_fixed = read_structures(&f.outlet.fixed, "outlet.fixed", &mut problems);
+    let existing_fixed = f
+        .existing
+        .as_ref()
+        .map(|ex| read_structures(&ex.fixed, "existing.fixed", &mut problems));
+    if !problems.is_empty() {
+        return Err(problems);
+    }
     let storage = match &f.storage {
         StorageFile::SurveyArea {
             method,
@@ -909,9 +1030,8 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
             depth_m: *depth_m,
         },
     };
-    let fixed: Vec<StructureSpec> = f.outlet.fixed.iter().map(StructureFile::spec).collect();
+    let fixed: Vec<StructureSpec> = outlet_fixed.iter().map(StructureFile::spec).collect();
     let g = &f.outlet.gate;
-    let mut problems = Vec::new();
     let mut subs = Vec::new();
     for (i, s) in f.catchment.sub.iter().enumerate() {
         match tc_s(i, s) {
@@ -991,11 +1111,11 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
         return Err(problems);
     }
     let config = spec.build().map_err(|e| one(map_pack(e)))?;
-    let existing = match &f.existing {
+    let existing = match &existing_fixed {
         None => None,
         Some(ex) => {
             let mut list: Vec<FixedStructure> = Vec::new();
-            for (i, s) in ex.fixed.iter().enumerate() {
+            for (i, s) in ex.iter().enumerate() {
                 let st = s.spec().build().map_err(|e| {
                     one(map_build(
                         SpecPart::Structure(0),
@@ -1018,12 +1138,12 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
             )
         }
     };
-    let existing_config = match &f.existing {
+    let existing_config = match &existing_fixed {
         None => None,
         Some(ex) => {
             let mut s = spec.clone();
             s.outlet.fixed.clear();
-            for st in &ex.fixed {
+            for st in ex {
                 s.outlet
                     .fixed
                     .push(st.spec())
@@ -1371,6 +1491,54 @@ mod tests {
         for (text, want) in cases {
             let e = load_str(&text).unwrap_err();
             assert_eq!(e[0].to_string(), want);
+        }
+    }
+
+    /// A structure entry's mistakes name their key (before: "pond file: invalid type ..."
+    /// with no path, because serde buffers a tagged entry): a wrong type, an unknown or
+    /// missing kind, a key the kind does not take, a missing setting; the mistakes of every
+    /// entry, outlet and existing, are reported together.
+    #[test]
+    fn structure_entries_name_their_keys() {
+        let cases = [
+            (
+                DEMO_POND.replace("diameter_m = 0.10", "diameter_m = \"0.10\""),
+                vec!["outlet.fixed[0].diameter_m: invalid type: string \"0.10\", expected f32"],
+            ),
+            (
+                DEMO_POND.replace("diameter_m = 0.10", "diam = 0.10"),
+                vec![
+                    "outlet.fixed[0].diam: unknown field `diam`, expected one of `invert_m`, \
+                     `diameter_m`, `cd`",
+                ],
+            ),
+            (
+                DEMO_POND.replacen("kind = \"circular-orifice\"", "kind = \"round-hole\"", 1),
+                vec!["outlet.fixed[0].kind = \"round-hole\": must be one of circular-orifice"],
+            ),
+            (
+                DEMO_POND.replacen("kind = \"circular-orifice\"\n", "", 1),
+                vec!["outlet.fixed[0].kind: missing; write one of circular-orifice"],
+            ),
+            (
+                DEMO_POND.replacen("cd = 0.95\n", "", 1),
+                vec!["outlet.fixed[1]: missing field `cd`"],
+            ),
+            (
+                DEMO_POND.replace("bottom_width_m = 6.0", "bottom_width_m = \"six\""),
+                vec![
+                    "outlet.fixed[1].bottom_width_m: invalid type",
+                    "existing.fixed[1].bottom_width_m: invalid type",
+                ],
+            ),
+        ];
+        for (text, want) in cases {
+            let e = load_str(&text).unwrap_err();
+            let got: Vec<String> = e.iter().map(ToString::to_string).collect();
+            assert_eq!(got.len(), want.len(), "{got:?}");
+            for (g, w) in got.iter().zip(&want) {
+                assert!(g.starts_with(w), "{g:?} does not start with {w:?}");
+            }
         }
     }
 
