@@ -656,7 +656,12 @@ impl Controller {
     /// Most inflow volume any view of the rain to come can bring over the horizon, m³: the
     /// runoff still on its way plus the deepest view's rain over the whole effective area,
     /// with room for f32 rounding. `None` if a view cannot be evaluated.
-    fn inflow_bound_m3(&self, cfg: &PondConfig, now_s: u32) -> Option<f32> {
+    ///
+    /// No outlook the forecast builds brings more (the tests check it against
+    /// [`Self::outlook_now`] over whole storms): this is what lets a forecast skip routing
+    /// when the pond could take it all, and skip building the outlooks when it also settles
+    /// "no more inflow".
+    pub fn inflow_bound_m3(&self, cfg: &PondConfig, now_s: u32) -> Option<f32> {
         let c = cfg.control();
         let idf: &dyn Idf = cfg.idf();
         let dt_r = self.runoff.response().dt_s().max(1);
@@ -729,16 +734,27 @@ impl Controller {
         // arrives keeps the pond under the stage limit: no routing of an outlook could then
         // cross it (storage never exceeds the start plus the inflow), so no crossing, no
         // low-freeboard alarm and no Surcharge. Most forecasts of a long record end here.
-        let cannot_reach = !rain_fault
-            && self.inflow_bound_m3(cfg, now_s).is_some_and(|v| {
-                pond.stage_m(storage_m3 + v) < limits.stage_limit_m - BOUND_MARGIN_M
-            });
+        let bound_m3 = if rain_fault {
+            None
+        } else {
+            self.inflow_bound_m3(cfg, now_s)
+        };
+        let cannot_reach = bound_m3
+            .is_some_and(|v| pond.stage_m(storage_m3 + v) < limits.stage_limit_m - BOUND_MARGIN_M);
         let quiet = self
             .last_rain_s
             .is_none_or(|t| now_s.saturating_sub(t) >= QUIET_S);
-        // The outlooks are still needed after rain has stopped, for "no more inflow".
+        // "No more inflow": the outlook brings at most a hundredth of the water above normal
+        // (at least 1 m³).
+        let no_more_m3 = 0.01 * above_m3.max(100.0);
+        // The outlooks are still needed after rain has stopped, for "no more inflow", unless
+        // the bound (at least every outlook's volume) already settles it: then, with nothing
+        // to route, building them would change nothing (most forecasts of a dry drawdown).
         let (likely, upper) = if cannot_reach && !quiet {
             fc.no_more_inflow = false;
+            (None, None)
+        } else if cannot_reach && bound_m3.is_some_and(|v| v <= no_more_m3) {
+            fc.no_more_inflow = true;
             (None, None)
         } else {
             self.outlooks(cfg, now_s, rain_fault)
@@ -782,7 +798,7 @@ impl Controller {
             fc.over_limit = true;
         }
         if let Some(look) = upper.as_ref().or(likely.as_ref()) {
-            fc.no_more_inflow = quiet && look.volume_m3() <= 0.01 * above_m3.max(100.0);
+            fc.no_more_inflow = quiet && look.volume_m3() <= no_more_m3;
         }
         if self.mode == Mode::Drawdown {
             let cap = self.drawdown_target_m3s(cfg, now_s, storage_m3).0;
