@@ -223,28 +223,21 @@ fn read_structure(v: &toml::Value, path: &str) -> Result<StructureFile, Problem>
             ));
         }
     };
-    fn settings<T: serde::de::DeserializeOwned>(t: toml::Table, path: &str) -> Result<T, Problem> {
-        serde_path_to_error::deserialize(toml::Value::Table(t)).map_err(
-            |e: serde_path_to_error::Error<toml::de::Error>| {
-                let key = e.path().to_string();
-                let msg = e.inner().message().trim().to_string();
-                if key == "." || key.is_empty() {
-                    problem(path, format!(": {msg}"))
-                } else {
-                    problem(format!("{path}.{key}"), format!(": {msg}"))
-                }
-            },
-        )
-    }
     Ok(match kind.as_str() {
-        "circular-orifice" => StructureFile::CircularOrifice(settings(t, path)?),
-        "rectangular-orifice" => StructureFile::RectangularOrifice(settings(t, path)?),
-        "rectangular-weir" => StructureFile::RectangularWeir(settings(t, path)?),
-        "v-notch-weir" => StructureFile::VNotchWeir(settings(t, path)?),
-        "broad-crested-weir" => StructureFile::BroadCrestedWeir(settings(t, path)?),
-        "riser-circular" => StructureFile::RiserCircular(settings(t, path)?),
-        "riser-rectangular" => StructureFile::RiserRectangular(settings(t, path)?),
-        "spillway" => StructureFile::Spillway(settings(t, path)?),
+        "circular-orifice" => StructureFile::CircularOrifice(read_at(toml::Value::Table(t), path)?),
+        "rectangular-orifice" => {
+            StructureFile::RectangularOrifice(read_at(toml::Value::Table(t), path)?)
+        }
+        "rectangular-weir" => StructureFile::RectangularWeir(read_at(toml::Value::Table(t), path)?),
+        "v-notch-weir" => StructureFile::VNotchWeir(read_at(toml::Value::Table(t), path)?),
+        "broad-crested-weir" => {
+            StructureFile::BroadCrestedWeir(read_at(toml::Value::Table(t), path)?)
+        }
+        "riser-circular" => StructureFile::RiserCircular(read_at(toml::Value::Table(t), path)?),
+        "riser-rectangular" => {
+            StructureFile::RiserRectangular(read_at(toml::Value::Table(t), path)?)
+        }
+        "spillway" => StructureFile::Spillway(read_at(toml::Value::Table(t), path)?),
         other => {
             return Err(problem(
                 format!("{path}.kind"),
@@ -252,6 +245,24 @@ fn read_structure(v: &toml::Value, path: &str) -> Result<StructureFile, Problem>
             ));
         }
     })
+}
+
+/// Reads `tree`, the part of the file at `at` ("" for the whole file), through
+/// serde_path_to_error, so that a value of the wrong type names its key.
+fn read_at<T: serde::de::DeserializeOwned>(tree: toml::Value, at: &str) -> Result<T, Problem> {
+    serde_path_to_error::deserialize(tree).map_err(
+        |e: serde_path_to_error::Error<toml::de::Error>| {
+            let key = e.path().to_string();
+            let msg = e.inner().message().trim().to_string();
+            let whole = key == "." || key.is_empty();
+            match (at.is_empty(), whole) {
+                (true, true) => problem("", format!("pond file: {msg}")),
+                (true, false) => problem(key, format!(": {msg}")),
+                (false, true) => problem(at, format!(": {msg}")),
+                (false, false) => problem(format!("{at}.{key}"), format!(": {msg}")),
+            }
+        },
+    )
 }
 
 /// Every entry of a structure list, the problems of all of them together.
@@ -944,19 +955,10 @@ pub fn load_str(text: &str) -> Result<Pond, Vec<Problem>> {
     // Through serde_path_to_error, so that a value of the wrong type names its key
     // ("outlet.gate.width_m: invalid type: string ..."), which the bare TOML error does not
     // once the text has become a tree.
-    let file: File = serde_path_to_error::deserialize(tree).map_err(
-        |e: serde_path_to_error::Error<toml::de::Error>| {
-            let path = e.path().to_string();
-            let msg = e.inner().message().trim().to_string();
-            let mut p = if path == "." || path.is_empty() {
-                problem("", format!("pond file: {msg}"))
-            } else {
-                problem(&path, format!(": {msg}"))
-            };
-            us_note(&mut p, &renamed);
-            vec![p]
-        },
-    )?;
+    let file: File = read_at(tree, "").map_err(|mut p| {
+        us_note(&mut p, &renamed);
+        vec![p]
+    })?;
     let mut pond = build(&file).map_err(|mut ps| {
         for p in &mut ps {
             us_note(p, &renamed);

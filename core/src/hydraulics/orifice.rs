@@ -140,7 +140,7 @@ impl CircularOrifice {
     /// costs one square root and a Horner sum, with full f32 precision at every depth (the
     /// shallow end included, where a direct `θ − sin θ` cancels). Above half full the
     /// segment is the circle less the dry segment above the water: `2π − (1 − u)^1.5·g(1 − u)`,
-    /// `1 − u` exact there. This replaced an arc tangent and a Taylor series (session 5).
+    /// `1 − u` exact there.
     #[inline]
     fn wetted_area_m2(&self, y: f32) -> f32 {
         let d = self.diameter_m;
