@@ -182,6 +182,17 @@ proptest! {
         prop_assert!(o.discharge_m3s(st, a + d) >= q * (1.0 - ULP_REL));
     }
 
+    /// The outlet skips the structures the stage is at or below (they pass nothing, the first
+    /// property above): its fixed discharge is the plain sum over every structure, bit for
+    /// bit, at any stage and tailwater, NaN included.
+    #[test]
+    fn outlet_fixed_sum_is_every_structure(fixed in proptest::collection::vec(structure(), 0..=MAX_FIXED), tw in tail(), st in -2.0_f32..8.0, nan in any::<bool>()) {
+        let o = Outlet::new(&fixed, None, tw).unwrap();
+        let st = if nan { f32::NAN } else { st };
+        let plain = fixed.iter().fold(0.0_f32, |q, s| q + s.discharge_m3s(st, tw));
+        prop_assert_eq!(o.fixed_discharge_m3s(st).to_bits(), plain.to_bits());
+    }
+
     /// inverse(rating(x)) = x: `opening_for(stage, Q(stage, x))` returns an opening whose
     /// discharge is the target, and returns x itself wherever Q is strictly increasing in the
     /// opening near x; exact at the bounds.

@@ -157,10 +157,15 @@ impl Outlet {
 
     /// Total discharge of the fixed structures (m³/s) at `stage_m`.
     pub fn fixed_discharge_m3s(&self, stage_m: f32) -> f32 {
-        self.fixed
-            .iter()
-            .map(|s| s.discharge_m3s(stage_m, self.tailwater_m))
-            .sum()
+        // A structure passes nothing at and below its invert (`FixedStructure::invert_m`), so
+        // those are not evaluated: most of a dry spell is below every crest but the lowest.
+        let mut q = 0.0_f32;
+        for s in &self.fixed {
+            if stage_m > s.invert_m() {
+                q += s.discharge_m3s(stage_m, self.tailwater_m);
+            }
+        }
+        q
     }
 
     /// Discharge of the gate (m³/s) at `stage_m` and `opening_m` (clamped); 0 without a gate.
@@ -218,12 +223,14 @@ impl Outlet {
             });
         }
         let (mut lo, mut hi) = (0.0_f32, max_a);
+        let at = gate.at_stage(stage_m, self.tailwater_m);
         for _ in 0..MAX_INVERSE_ITERATIONS {
             let mid = 0.5 * (lo + hi);
             if !(mid > lo && mid < hi) {
                 break;
             }
-            let q = fixed + gate.discharge_m3s(stage_m, mid, self.tailwater_m);
+            // 0 <= lo < mid < hi <= max_a: within the stroke, so no clamp is needed.
+            let q = fixed + at.discharge_within_m3s(mid);
             if q < target_m3s {
                 lo = mid;
             } else {
