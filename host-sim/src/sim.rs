@@ -953,7 +953,9 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
                 }
             }
         }
-        if mode != last_mode {
+        // Mode names are static strings: the same pointer is the same name without
+        // comparing the text (most steps stay in their mode).
+        if !std::ptr::eq(mode, last_mode) && mode != last_mode {
             // Only modes actually spent time in (the policy's name stands for the controller's
             // mode until its first step, for no time at all).
             if t > mode_since {
