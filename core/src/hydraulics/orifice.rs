@@ -32,7 +32,7 @@ use crate::{G_M_S2, math};
 /// Coefficients (constant term first) of `g(u) = (θ − sin θ)/u^1.5`, `θ = 4·asin(√u)`, on
 /// `0 ≤ u ≤ 1/2`: the circular segment's excess over its chord. Chebyshev fit of degree 11
 /// to 50-digit values, made and checked by `tools/fit/orifice_segment.py` (numpy 2.4.6,
-/// mpmath 1.3.0): largest relative error 9.8e-8 evaluated this way in f32 (Horner).
+/// mpmath 1.3.0): largest relative error 1.4e-7 evaluated in f32 by [`segment_g`].
 #[allow(clippy::excessive_precision)]
 const SEGMENT_G: [f32; 12] = [
     10.666666984558105,
@@ -48,6 +48,20 @@ const SEGMENT_G: [f32; 12] = [
     0.39157456159591675,
     -0.214291051030159,
 ];
+
+/// `g(v)` of [`SEGMENT_G`] by second-order Horner: the even and the odd coefficients as
+/// two Horner sums in `v²`, side by side, then `even + v·odd`. The same polynomial as one
+/// Horner sum with about half the chain of dependent multiply–adds (that chain is the
+/// latency of most orifice evaluations in a long replay); its f32 error is checked in
+/// `tools/fit/orifice_segment.py`, evaluated in this order.
+#[inline]
+fn segment_g(v: f32) -> f32 {
+    let [c0, c1, c2, c3, c4, c5, c6, c7, c8, c9, c10, c11] = SEGMENT_G;
+    let w = v * v;
+    let even = ((((c10 * w + c8) * w + c6) * w + c4) * w + c2) * w + c0;
+    let odd = ((((c11 * w + c9) * w + c7) * w + c5) * w + c3) * w + c1;
+    even + v * odd
+}
 
 /// Free-flow law shared by both shapes: `wetted_area_m2` is `A_w(h)` for `0 < h < D`.
 #[inline]
@@ -137,7 +151,7 @@ impl CircularOrifice {
     ///
     /// For `u ≤ 1/2` the excess is `θ − sin θ = u^1.5·g(u)`, `g` analytic on `|u| < 1`
     /// (`g(0) = 32/3`); [`SEGMENT_G`] is a degree-11 fit of `g` on `[0, 1/2]`, so the excess
-    /// costs one square root and a Horner sum, with full f32 precision at every depth (the
+    /// costs one square root and a polynomial ([`segment_g`]), with full f32 precision at every depth (the
     /// shallow end included, where a direct `θ − sin θ` cancels). Above half full the
     /// segment is the circle less the dry segment above the water: `2π − (1 − u)^1.5·g(1 − u)`,
     /// `1 − u` exact there.
@@ -146,7 +160,7 @@ impl CircularOrifice {
         let d = self.diameter_m;
         let u = math::clamp(y / d, 0.0, 1.0);
         let (v, above_half) = if u > 0.5 { (1.0 - u, true) } else { (u, false) };
-        let g = SEGMENT_G.iter().rev().fold(0.0_f32, |acc, c| acc * v + c);
+        let g = segment_g(v);
         let dry_or_wet = v * math::sqrt(v) * g;
         let excess = if above_half {
             2.0 * core::f32::consts::PI - dry_or_wet
