@@ -518,7 +518,7 @@ impl StageStorage {
         match &self.relation {
             Relation::Basin { geometry, .. } => self.floor_m + basin_depth(geometry, storage_m3),
             Relation::Table { rows, segment } => {
-                let i = rows.partition_point(|r| r.volume_m3 < storage_m3);
+                let i = rows_below(rows, |r| r.volume_m3 < storage_m3);
                 let pair = i
                     .checked_sub(1)
                     .and_then(|i0| Some((rows.get(i0)?, rows.get(i)?)));
@@ -536,9 +536,19 @@ impl StageStorage {
     }
 }
 
+/// How many rows, from the floor up, satisfy `below` (a predicate true for a prefix of the
+/// rows: stages and volumes rise row by row): `partition_point`'s answer, by a scan from the
+/// floor. A pond spends most of its time in its lowest segments, where the scan ends after a
+/// row or two with branches that predict well; the binary search's chain of dependent
+/// loads and selects costs the same at every level (measured: about 5 % of a long replay).
+#[inline]
+fn rows_below(rows: &[Row], below: impl Fn(&Row) -> bool) -> usize {
+    rows.iter().position(|r| !below(r)).unwrap_or(rows.len())
+}
+
 /// The segment (lower row, upper row) holding `stage_m`, for floor < stage < top.
 fn segment_at(rows: &[Row], stage_m: f32) -> Option<(&Row, &Row)> {
-    let i = rows.partition_point(|r| r.stage_m <= stage_m);
+    let i = rows_below(rows, |r| r.stage_m <= stage_m);
     let i0 = i.checked_sub(1)?;
     Some((rows.get(i0)?, rows.get(i)?))
 }
@@ -613,6 +623,37 @@ fn basin_depth(g: &BasinGeometry, v: f32) -> f32 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The scan from the floor finds the row the standard library's binary search
+    /// (`partition_point`, the reference) finds, for stages and volumes between rows, at
+    /// rows, below the floor and above the top, in a table with flat and steep segments.
+    #[test]
+    fn row_scan_is_partition_point() {
+        let t = StageStorage::from_areas(
+            &[
+                (10.0, 50.0),
+                (10.2, 50.0),
+                (10.5, 400.0),
+                (11.0, 900.0),
+                (11.01, 900.0),
+                (12.5, 4000.0),
+            ],
+            VolumeMethod::Frustum,
+        )
+        .unwrap();
+        let Relation::Table { rows, .. } = &t.relation else {
+            panic!("a table")
+        };
+        let mut stages: Vec<f32> = (0..=3000).map(|k| 9.9 + k as f32 * 0.001).collect();
+        stages.extend(rows.iter().map(|r| r.stage_m));
+        for h in stages {
+            let want = rows.partition_point(|r| r.stage_m <= h);
+            assert_eq!(rows_below(rows, |r| r.stage_m <= h), want, "stage {h}");
+            let v = t.storage_m3(h);
+            let want = rows.partition_point(|r| r.volume_m3 < v);
+            assert_eq!(rows_below(rows, |r| r.volume_m3 < v), want, "volume {v}");
+        }
+    }
 
     /// Vertical walls: 100 m² from 10 m to 12 m holds 100·Δh (volume of a prism, exact).
     #[test]
