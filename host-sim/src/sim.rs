@@ -842,6 +842,9 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         cut_short: false,
     };
     let record = opt.record_s.max(dt);
+    // `t % record`, kept up step by step (record >= dt, so one subtraction at most): a
+    // division a step less in a long replay.
+    let mut since_record: u32 = 0;
     let forecast_at: Vec<u32> = opt.forecast_at_s.iter().map(|t| t / dt * dt).collect();
     let mut rain_since_record = 0.0f64;
     let mut cursor = MassCursor::default();
@@ -1009,6 +1012,10 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         };
         let q_out = released_m3 as f64 / dt as f64;
         t += dt;
+        since_record += dt;
+        if since_record >= record {
+            since_record -= record;
+        }
         let t64 = t as u64;
         rain_since_record += rain_now as f64;
         // --- bookkeeping
@@ -1041,7 +1048,7 @@ pub fn run(pond: &Pond, storm: &Storm, kind: PolicyKind, opt: &RunOptions) -> Ru
         let out_of_time = t64 >= total_s;
         // Every `record` seconds, and always the last step, so that a record interval longer
         // than the run still writes the end state.
-        if t.is_multiple_of(record) || finished || out_of_time {
+        if since_record == 0 || finished || out_of_time {
             r.rows.push(Row {
                 t_s: t,
                 rain_mm: rain_since_record as f32,
