@@ -5,6 +5,7 @@ use std::fmt::Write as _;
 use std::path::Path;
 
 use plotters::coord::Shift;
+use plotters::coord::types::RangedCoordf64;
 use plotters::prelude::*;
 
 use crate::pondfile::Pond;
@@ -142,6 +143,69 @@ fn mode_colour(mode: &str) -> RGBColor {
     }
 }
 
+/// One panel's chart: time in hours across, `y` up.
+type Panel<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+
+/// A panel on `area` with time in hours across `x` and `y` up; captioned and with label
+/// areas only when text is drawn.
+fn panel<'a, DB: DrawingBackend + 'a>(
+    area: &'a DrawingArea<DB, Shift>,
+    caption: &str,
+    text: bool,
+    x: std::ops::Range<f64>,
+    y: std::ops::Range<f64>,
+) -> Result<Panel<'a, DB>, String>
+where
+    DB::ErrorType: 'static,
+{
+    let mut b = ChartBuilder::on(area);
+    let (x_labels, y_labels) = if text { (28, 45) } else { (0, 0) };
+    b.margin(6)
+        .x_label_area_size(x_labels)
+        .y_label_area_size(y_labels);
+    if text {
+        b.caption(caption, ("sans-serif", 14));
+    }
+    b.build_cartesian_2d(x, y).map_err(|x| x.to_string())
+}
+
+/// The series labels of a panel, top right, when text is drawn.
+fn legend<'a, DB: DrawingBackend + 'a>(ch: &mut Panel<'a, DB>, text: bool) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    if !text {
+        return Ok(());
+    }
+    ch.configure_series_labels()
+        .background_style(WHITE.mix(0.8))
+        .border_style(BLACK)
+        .label_font(("sans-serif", 12))
+        .position(SeriesLabelPosition::UpperRight)
+        .draw()
+        .map_err(|x| x.to_string())
+}
+
+/// A dashed horizontal line at `y` across the run (the permit, the crest, crest − freeboard).
+fn level_line<'a, DB: DrawingBackend + 'a>(
+    ch: &mut Panel<'a, DB>,
+    y: f64,
+    t_end: f64,
+    colour: RGBColor,
+) -> Result<(), String>
+where
+    DB::ErrorType: 'static,
+{
+    ch.draw_series(DashedLineSeries::new(
+        vec![(0.0, y), (t_end, y)],
+        6,
+        4,
+        colour.stroke_width(1),
+    ))
+    .map(|_| ())
+    .map_err(|x| x.to_string())
+}
+
 /// Draws the four panels (rain; inflow and releases with the permit; stages with crest and
 /// freeboard; gate opening with mode bands) on `root`. `text` = false draws no text at all.
 fn draw<DB: DrawingBackend>(
@@ -170,9 +234,6 @@ where
         .unwrap_or(3600)
         .max(3600) as f64
         / 3600.0;
-    let font = ("sans-serif", 14);
-    let label = if text { 45 } else { 0 };
-    let xl = if text { 28 } else { 0 };
     let cfg = &p.config;
     let hours = |t: u32| t as f64 / 3600.0;
 
@@ -182,14 +243,13 @@ where
         .iter()
         .map(|r| r.rain_mm as f64)
         .fold(0.1, f64::max);
-    let mut b = ChartBuilder::on(&panels[0]);
-    b.margin(6).x_label_area_size(xl).y_label_area_size(label);
-    if text {
-        b.caption("Rain (mm per record step)", font);
-    }
-    let mut ch = b
-        .build_cartesian_2d(0f64..t_end, 0f64..rmax * 1.1)
-        .map_err(e)?;
+    let mut ch = panel(
+        &panels[0],
+        "Rain (mm per record step)",
+        text,
+        0f64..t_end,
+        0f64..rmax * 1.1,
+    )?;
     let mut mesh = ch.configure_mesh();
     if !text {
         mesh.x_labels(0).y_labels(0);
@@ -214,14 +274,13 @@ where
         .flat_map(|(r, _)| r.rows.iter())
         .map(|r| r.inflow_m3s.max(r.release_m3s) as f64)
         .fold(permit * 1.2, f64::max);
-    let mut b = ChartBuilder::on(&panels[1]);
-    b.margin(6).x_label_area_size(xl).y_label_area_size(label);
-    if text {
-        b.caption("Inflow and release (m3/s); dashed: permit", font);
-    }
-    let mut ch = b
-        .build_cartesian_2d(0f64..t_end, 0f64..qmax * 1.05)
-        .map_err(e)?;
+    let mut ch = panel(
+        &panels[1],
+        "Inflow and release (m3/s); dashed: permit",
+        text,
+        0f64..t_end,
+        0f64..qmax * 1.05,
+    )?;
     let mut mesh = ch.configure_mesh();
     if !text {
         mesh.x_labels(0).y_labels(0);
@@ -253,22 +312,8 @@ where
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], c));
         }
     }
-    ch.draw_series(DashedLineSeries::new(
-        vec![(0.0, permit), (t_end, permit)],
-        6,
-        4,
-        RED.stroke_width(1),
-    ))
-    .map_err(e)?;
-    if text {
-        ch.configure_series_labels()
-            .background_style(WHITE.mix(0.8))
-            .border_style(BLACK)
-            .label_font(("sans-serif", 12))
-            .position(SeriesLabelPosition::UpperRight)
-            .draw()
-            .map_err(e)?;
-    }
+    level_line(&mut ch, permit, t_end, RED)?;
+    legend(&mut ch, text)?;
 
     // 3. stage
     let crest = cfg.levels().crest_m as f64;
@@ -279,17 +324,13 @@ where
         .flat_map(|(r, _)| r.rows.iter())
         .map(|r| r.stage_m as f64)
         .fold(crest + 0.1, f64::max);
-    let mut b = ChartBuilder::on(&panels[2]);
-    b.margin(6).x_label_area_size(xl).y_label_area_size(label);
-    if text {
-        b.caption(
-            "Stage (m); dashed: crest and crest - freeboard; black dashed: forecast",
-            font,
-        );
-    }
-    let mut ch = b
-        .build_cartesian_2d(0f64..t_end, floor..hmax + 0.05)
-        .map_err(e)?;
+    let mut ch = panel(
+        &panels[2],
+        "Stage (m); dashed: crest and crest - freeboard; black dashed: forecast",
+        text,
+        0f64..t_end,
+        floor..hmax + 0.05,
+    )?;
     let mut mesh = ch.configure_mesh();
     if !text {
         mesh.x_labels(0).y_labels(0);
@@ -325,41 +366,22 @@ where
                 .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], BLACK));
         }
     }
-    for (lvl, col) in [(crest, RED), (limit, RGBColor(255, 127, 14))] {
-        ch.draw_series(DashedLineSeries::new(
-            vec![(0.0, lvl), (t_end, lvl)],
-            6,
-            4,
-            col.stroke_width(1),
-        ))
-        .map_err(e)?;
-    }
-    if text {
-        ch.configure_series_labels()
-            .background_style(WHITE.mix(0.8))
-            .border_style(BLACK)
-            .label_font(("sans-serif", 12))
-            .position(SeriesLabelPosition::UpperRight)
-            .draw()
-            .map_err(e)?;
-    }
+    level_line(&mut ch, crest, t_end, RED)?;
+    level_line(&mut ch, limit, t_end, RGBColor(255, 127, 14))?;
+    legend(&mut ch, text)?;
 
     // 4. gate with mode bands (first policy)
     let gmax = cfg.outlet().max_opening_m() as f64;
-    let mut b = ChartBuilder::on(&panels[3]);
-    b.margin(6).x_label_area_size(xl).y_label_area_size(label);
-    if text {
-        b.caption(
-            format!(
-                "Gate opening (m), policy {}; bands: mode",
-                runs.first().map_or("", |(_, m)| m.policy)
-            ),
-            font,
-        );
-    }
-    let mut ch = b
-        .build_cartesian_2d(0f64..t_end, 0f64..gmax * 1.05)
-        .map_err(e)?;
+    let mut ch = panel(
+        &panels[3],
+        &format!(
+            "Gate opening (m), policy {}; bands: mode",
+            runs.first().map_or("", |(_, m)| m.policy)
+        ),
+        text,
+        0f64..t_end,
+        0f64..gmax * 1.05,
+    )?;
     ch.draw_series(first.rows.iter().map(|r| {
         let x = hours(r.t_s);
         Rectangle::new(
@@ -393,7 +415,7 @@ where
         modes.dedup();
         modes.sort_unstable();
         modes.dedup();
-        for (i, mname) in modes.iter().enumerate() {
+        for mname in &modes {
             let c = mode_colour(mname);
             ch.draw_series(std::iter::once(Rectangle::new(
                 [(0.0, 0.0), (0.0, 0.0)],
@@ -402,16 +424,9 @@ where
             .map_err(e)?
             .label(format!("mode {mname}"))
             .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 14, y + 5)], c.filled()));
-            let _ = i;
         }
-        ch.configure_series_labels()
-            .background_style(WHITE.mix(0.8))
-            .border_style(BLACK)
-            .label_font(("sans-serif", 12))
-            .position(SeriesLabelPosition::UpperRight)
-            .draw()
-            .map_err(e)?;
     }
+    legend(&mut ch, text)?;
     root.present().map_err(e)?;
     Ok(())
 }
