@@ -55,6 +55,28 @@ fn demo_file(dir: &Path) -> PathBuf {
     p
 }
 
+/// A temp dir with the demo pond file in it (the dir lives as long as the first value).
+fn demo_dir() -> (tempfile::TempDir, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    let p = demo_file(dir.path());
+    (dir, p)
+}
+
+/// `holdback batch POND ARGS... --tail-h 24 --csv DIR/batch.csv`: the output and the CSV.
+fn batch(dir: &Path, pond: &Path, args: &[&str]) -> (Output, String) {
+    let csv = dir.join("batch.csv");
+    let o = bin()
+        .arg("batch")
+        .arg(pond)
+        .args(args)
+        .args(["--tail-h", "24", "--csv"])
+        .arg(&csv)
+        .output()
+        .expect("the binary runs");
+    let c = std::fs::read_to_string(&csv).unwrap_or_default();
+    (o, c)
+}
+
 /// Every command prints the caution line on stderr.
 #[test]
 fn demo_prints_rating_and_routed_storm_and_the_caution() {
@@ -128,8 +150,7 @@ fn check_reports_the_storage_needed_and_warns_when_short() {
 
 #[test]
 fn check_accepts_the_demo_and_names_the_path_of_a_bad_value() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let o = run(&["check", p.to_str().unwrap()]);
     assert_eq!(o.status.code(), Some(0), "{}", text(&o.stderr));
     assert!(text(&o.stdout).contains(": ok"));
@@ -182,8 +203,7 @@ fn suspicious_values_are_warnings() {
 
 #[test]
 fn rating_rejects_an_opening_beyond_the_gate() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (_dir, p) = demo_dir();
     let o = run(&["rating", p.to_str().unwrap(), "--opening", "0.3"]);
     assert_eq!(o.status.code(), Some(0));
     assert!(text(&o.stdout).starts_with("stage_m,storage_m3,q_open_0.300_m3s\n"));
@@ -219,8 +239,7 @@ fn write_pond_leaves_an_existing_file_alone_without_force() {
 /// time series was a header alone), and the last row is the end of the run.
 #[test]
 fn a_record_interval_longer_than_the_run_still_writes_the_end_state() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let out = dir.path().join("out");
     let o = replay(
         &p,
@@ -265,8 +284,7 @@ fn a_record_interval_longer_than_the_run_still_writes_the_end_state() {
 /// 1e-9` set out to print billions of rows and never ended); a millimetre step works.
 #[test]
 fn rating_refuses_a_step_finer_than_it_prints() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (_dir, p) = demo_dir();
     let o = run(&["rating", p.to_str().unwrap(), "--step", "1e-9"]);
     assert_eq!(o.status.code(), Some(2));
     assert!(
@@ -294,8 +312,7 @@ fn pond_file_round_trips_through_the_packed_form() {
     assert_eq!(a[..n], b[..m]);
 
     // The same through the CLI, on disk.
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let bin_path = dir.path().join("pond.bin");
     let o = run(&[
         "pack",
@@ -338,8 +355,7 @@ fn design_storm_totals_match_the_idf_depth() {
 
 #[test]
 fn design_storm_command_prints_csv() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (_dir, p) = demo_dir();
     let o = run(&[
         "design-storm",
         p.to_str().unwrap(),
@@ -363,8 +379,7 @@ fn design_storm_command_prints_csv() {
 #[test]
 fn recorded_rain_is_split_into_events_and_replayed() {
     let rain = repo().join("tests/data/rain/sg_s117_storms.csv");
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let out = dir.path().join("out");
     let o = run(&[
         "replay",
@@ -429,8 +444,7 @@ fn recorded_rain_is_split_into_events_and_replayed() {
 #[test]
 fn list_events_prints_the_events_as_csv_and_stops() {
     let rain = repo().join("tests/data/rain/sg_s117_storms.csv");
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let o = bin()
         .args([
             "replay",
@@ -470,8 +484,7 @@ fn list_events_prints_the_events_as_csv_and_stops() {
 /// Bad rows and gaps are reported with line numbers; --strict makes them fatal (exit 2).
 #[test]
 fn bad_rain_rows_are_reported_with_line_numbers() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let rain = dir.path().join("rain.csv");
     std::fs::write(
         &rain,
@@ -513,8 +526,7 @@ fn bad_rain_rows_are_reported_with_line_numbers() {
 
 #[test]
 fn faults_parse_and_bad_ones_are_input_errors() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (_dir, p) = demo_dir();
     let base = [
         "replay",
         p.to_str().unwrap(),
@@ -571,26 +583,21 @@ fn demo_summaries_match_the_golden_files() {
 
 #[test]
 fn batch_runs_in_parallel_and_fails_when_a_run_fails() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
-    let csv = dir.path().join("batch.csv");
-    let o = run(&[
-        "batch",
-        p.to_str().unwrap(),
-        "--return-periods",
-        "2,100",
-        "--durations-min",
-        "60",
-        "--policy",
-        "bound",
-        "--tail-h",
-        "24",
-        "--csv",
-        csv.to_str().unwrap(),
-    ]);
+    let (dir, p) = demo_dir();
+    let (o, c) = batch(
+        dir.path(),
+        &p,
+        &[
+            "--return-periods",
+            "2,100",
+            "--durations-min",
+            "60",
+            "--policy",
+            "bound",
+        ],
+    );
     let out = text(&o.stdout);
     assert_eq!(out.lines().count(), 3, "{out}");
-    let c = std::fs::read_to_string(&csv).unwrap();
     assert_eq!(c.lines().count(), 3);
     // The 100-year storm overtops the freeboard of the demo pond even at the bound.
     let any_fail = c.lines().skip(1).any(|l| l.ends_with(",false"));
@@ -602,28 +609,23 @@ fn batch_runs_in_parallel_and_fails_when_a_run_fails() {
 /// code judges the controller's rows, the baselines are shown for comparison.
 #[test]
 fn batch_runs_every_policy_listed_from_the_seed_given() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
-    let csv = dir.path().join("batch.csv");
-    let o = run(&[
-        "batch",
-        p.to_str().unwrap(),
-        "--return-periods",
-        "2",
-        "--durations-min",
-        "60",
-        "--policy",
-        "controller,fixed",
-        "--seed",
-        "7",
-        "--seeds",
-        "2",
-        "--tail-h",
-        "24",
-        "--csv",
-        csv.to_str().unwrap(),
-    ]);
-    let c = std::fs::read_to_string(&csv).unwrap();
+    let (dir, p) = demo_dir();
+    let (o, c) = batch(
+        dir.path(),
+        &p,
+        &[
+            "--return-periods",
+            "2",
+            "--durations-min",
+            "60",
+            "--policy",
+            "controller,fixed",
+            "--seed",
+            "7",
+            "--seeds",
+            "2",
+        ],
+    );
     let rows: Vec<Vec<&str>> = c.lines().skip(1).map(|l| l.split(',').collect()).collect();
     // Columns: storm, variant, seed, policy, …
     let runs: Vec<(&str, &str)> = rows.iter().map(|r| (r[3], r[2])).collect();
@@ -654,33 +656,28 @@ fn batch_runs_every_policy_listed_from_the_seed_given() {
 /// file would refuse is refused with its key before anything runs.
 #[test]
 fn batch_varies_pond_file_settings() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
-    let csv = dir.path().join("batch.csv");
-    let o = run(&[
-        "batch",
-        p.to_str().unwrap(),
-        "--return-periods",
-        "2",
-        "--durations-min",
-        "60",
-        "--policy",
-        "controller",
-        "--vary",
-        "control.deadband_m=0.01,0.05",
-        "--vary",
-        "permit.margin=0.05,0.1",
-        "--tail-h",
-        "24",
-        "--csv",
-        csv.to_str().unwrap(),
-    ]);
+    let (dir, p) = demo_dir();
+    let (o, c) = batch(
+        dir.path(),
+        &p,
+        &[
+            "--return-periods",
+            "2",
+            "--durations-min",
+            "60",
+            "--policy",
+            "controller",
+            "--vary",
+            "control.deadband_m=0.01,0.05",
+            "--vary",
+            "permit.margin=0.05,0.1",
+        ],
+    );
     assert!(
         matches!(o.status.code(), Some(0 | 1)),
         "{}",
         text(&o.stderr)
     );
-    let c = std::fs::read_to_string(&csv).unwrap();
     let variants: Vec<&str> = c
         .lines()
         .skip(1)
@@ -716,8 +713,7 @@ fn batch_varies_pond_file_settings() {
 /// showed "pass" on a run that ended before the peak), and the exit code says it failed.
 #[test]
 fn a_run_cut_short_before_the_runoff_has_arrived_is_not_judged_a_pass() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let out = dir.path().join("out");
     let o = replay(
         &p,
@@ -750,8 +746,7 @@ fn a_run_cut_short_before_the_runoff_has_arrived_is_not_judged_a_pass() {
 /// storm) and a design storm read beyond the IDF's declared return periods.
 #[test]
 fn storage_and_extrapolation_warnings_reach_the_summary() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let out = dir.path().join("out");
     replay(
         &p,
@@ -872,8 +867,7 @@ fn a_us_customary_pond_file_is_the_same_pond() {
 /// into a 1-minute hyetograph: 300 tips over an hour replay as 60 mm of rain.
 #[test]
 fn tip_times_replay_as_rain_of_one_bucket_each() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let mut csv = String::from("tip_time\n");
     for k in 0..300 {
         let s = 12 * k + 5;
@@ -914,8 +908,7 @@ fn tip_times_replay_as_rain_of_one_bucket_each() {
 /// machine without the system's DejaVu font got plots with no text at all).
 #[test]
 fn plots_are_labelled_without_a_system_font() {
-    let dir = tempfile::tempdir().unwrap();
-    let p = demo_file(dir.path());
+    let (dir, p) = demo_dir();
     let not_a_font = dir.path().join("not-a-font.ttf");
     std::fs::write(&not_a_font, b"not a font").unwrap();
     let out = dir.path().join("out");
