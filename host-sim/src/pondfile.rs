@@ -10,7 +10,7 @@
 use std::fmt;
 
 use holdback_core::config::{ControlSettings, PondConfig};
-use holdback_core::hydraulics::{FixedStructure, Outlet};
+use holdback_core::hydraulics::{FixedStructure, Outlet, SluiceGate};
 use holdback_core::packed::{
     BuildError, CatchmentSpec, ControlSpec, FormulaSpec, GateSpec, IdfSpec, OutletSpec, PackError,
     PondSpec, SensorSpec, SpecPart, StorageSpec, StructureSpec, SubCatchmentSpec,
@@ -1102,13 +1102,20 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
     // The parts that stand alone are built one by one first, so that a file with mistakes
     // in several of them hears of all of them at once; the rules between parts (levels
     // against the storage, steps against the catchment, ...) follow once the parts are sound.
+    // Within the outlet, every structure and the gate on their own first: the outlet's build
+    // stops at its first refusal, which would hide the mistakes after it.
+    let mut problems = outlet_problems(&spec, existing_fixed.as_deref());
     let parts = [
         spec.build_storage().err(),
-        spec.build_outlet().err(),
+        if problems.is_empty() {
+            spec.build_outlet().err()
+        } else {
+            None
+        },
         spec.build_catchment().err(),
         spec.build_idf().err(),
     ];
-    let problems: Vec<Problem> = parts.into_iter().flatten().map(map_pack).collect();
+    problems.extend(parts.into_iter().flatten().map(map_pack));
     if !problems.is_empty() {
         return Err(problems);
     }
@@ -1166,6 +1173,35 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
         sub_names: f.catchment.sub.iter().map(|s| s.name.clone()).collect(),
         warnings: Vec::new(),
     })
+}
+
+/// The refusals of each fixed structure (of the outlet, and of the existing outlet when
+/// given) and of the gate, each on its own, with their paths in the pond file.
+fn outlet_problems(spec: &PondSpec, existing: Option<&[StructureFile]>) -> Vec<Problem> {
+    let structure = |i: usize, s: &StructureSpec| {
+        s.build().err().map(|e| {
+            let part = SpecPart::Structure(u8::try_from(i).unwrap_or(u8::MAX));
+            map_build(part, &BuildError::Hydraulics(e))
+        })
+    };
+    let mut problems: Vec<Problem> = spec
+        .outlet
+        .fixed
+        .iter()
+        .enumerate()
+        .filter_map(|(i, s)| structure(i, s))
+        .collect();
+    let g = &spec.outlet.gate;
+    if let Err(e) = SluiceGate::new(g.sill_m, g.width_m, g.max_opening_m, g.cc, g.cv) {
+        problems.push(map_build(SpecPart::Gate, &BuildError::Hydraulics(e)));
+    }
+    for (i, s) in existing.unwrap_or_default().iter().enumerate() {
+        if let Some(mut p) = structure(i, &s.spec()) {
+            p.path = p.path.replacen("outlet.fixed[", "existing.fixed[", 1);
+            problems.push(p);
+        }
+    }
+    problems
 }
 
 /// Time (s) to drain from `from_m` to within 1 cm of the normal level with the gate fully
@@ -1605,6 +1641,32 @@ mod tests {
             e.iter().any(|p| p.starts_with("catchment.sub[0].c = 1.7")),
             "{e:?}"
         );
+    }
+
+    /// Within the outlet too, every mistake at once: two bad structures, the gate and a bad
+    /// structure of the existing outlet (before, the outlet's build stopped at the first and
+    /// the existing outlet was checked only after everything else had passed).
+    #[test]
+    fn every_bad_structure_and_the_gate_are_reported_together() {
+        let bad = DEMO_POND
+            .replacen("diameter_m = 0.10", "diameter_m = -0.1", 1)
+            .replacen("cd = 0.95", "cd = 1.5", 1)
+            .replace("width_m = 0.60", "width_m = -0.4")
+            .replacen("diameter_m = 0.45", "diameter_m = 0.0", 1);
+        let e: Vec<String> = load_str(&bad)
+            .unwrap_err()
+            .iter()
+            .map(|p| p.to_string())
+            .collect();
+        assert_eq!(e.len(), 4, "{e:?}");
+        for want in [
+            "outlet.fixed[0].diameter_m = -0.1",
+            "outlet.fixed[1].cd = 1.5",
+            "outlet.gate.width_m = -0.4",
+            "existing.fixed[0].diameter_m = 0",
+        ] {
+            assert!(e.iter().any(|p| p.starts_with(want)), "{want}: {e:?}");
+        }
     }
 
     /// Legal but suspicious control settings are warned about, not refused.
