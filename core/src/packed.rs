@@ -209,6 +209,19 @@ pub struct GateSpec {
     pub cv: f32,
 }
 
+impl GateSpec {
+    /// Builds the gate (its constructor's validation).
+    pub fn build(&self) -> Result<SluiceGate, HydraulicsError> {
+        SluiceGate::new(
+            self.sill_m,
+            self.width_m,
+            self.max_opening_m,
+            self.cc,
+            self.cv,
+        )
+    }
+}
+
 /// The outlet: fixed structures, the gate, an optional fixed tailwater.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct OutletSpec {
@@ -616,8 +629,10 @@ impl PondSpec {
                 }),
             })?;
         }
-        let g = &self.outlet.gate;
-        let gate = SluiceGate::new(g.sill_m, g.width_m, g.max_opening_m, g.cc, g.cv)
+        let gate = self
+            .outlet
+            .gate
+            .build()
             .map_err(part(SpecPart::Gate, BuildError::Hydraulics))?;
         Outlet::new(&fixed, Some(gate), self.outlet.tailwater_m)
             .map_err(part(SpecPart::Outlet, BuildError::Hydraulics))

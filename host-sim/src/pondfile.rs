@@ -10,7 +10,7 @@
 use std::fmt;
 
 use holdback_core::config::{ControlSettings, PondConfig};
-use holdback_core::hydraulics::{FixedStructure, Outlet, SluiceGate};
+use holdback_core::hydraulics::{FixedStructure, Outlet};
 use holdback_core::packed::{
     BuildError, CatchmentSpec, ControlSpec, FormulaSpec, GateSpec, IdfSpec, OutletSpec, PackError,
     PondSpec, SensorSpec, SpecPart, StorageSpec, StructureSpec, SubCatchmentSpec,
@@ -223,21 +223,16 @@ fn read_structure(v: &toml::Value, path: &str) -> Result<StructureFile, Problem>
             ));
         }
     };
+    let entry = toml::Value::Table(t);
     Ok(match kind.as_str() {
-        "circular-orifice" => StructureFile::CircularOrifice(read_at(toml::Value::Table(t), path)?),
-        "rectangular-orifice" => {
-            StructureFile::RectangularOrifice(read_at(toml::Value::Table(t), path)?)
-        }
-        "rectangular-weir" => StructureFile::RectangularWeir(read_at(toml::Value::Table(t), path)?),
-        "v-notch-weir" => StructureFile::VNotchWeir(read_at(toml::Value::Table(t), path)?),
-        "broad-crested-weir" => {
-            StructureFile::BroadCrestedWeir(read_at(toml::Value::Table(t), path)?)
-        }
-        "riser-circular" => StructureFile::RiserCircular(read_at(toml::Value::Table(t), path)?),
-        "riser-rectangular" => {
-            StructureFile::RiserRectangular(read_at(toml::Value::Table(t), path)?)
-        }
-        "spillway" => StructureFile::Spillway(read_at(toml::Value::Table(t), path)?),
+        "circular-orifice" => StructureFile::CircularOrifice(read_at(entry, path)?),
+        "rectangular-orifice" => StructureFile::RectangularOrifice(read_at(entry, path)?),
+        "rectangular-weir" => StructureFile::RectangularWeir(read_at(entry, path)?),
+        "v-notch-weir" => StructureFile::VNotchWeir(read_at(entry, path)?),
+        "broad-crested-weir" => StructureFile::BroadCrestedWeir(read_at(entry, path)?),
+        "riser-circular" => StructureFile::RiserCircular(read_at(entry, path)?),
+        "riser-rectangular" => StructureFile::RiserRectangular(read_at(entry, path)?),
+        "spillway" => StructureFile::Spillway(read_at(entry, path)?),
         other => {
             return Err(problem(
                 format!("{path}.kind"),
@@ -1123,24 +1118,12 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
     let existing = match &existing_fixed {
         None => None,
         Some(ex) => {
-            let mut list: Vec<FixedStructure> = Vec::new();
-            for (i, s) in ex.iter().enumerate() {
-                let st = s.spec().build().map_err(|e| {
-                    one(map_build(
-                        SpecPart::Structure(0),
-                        &BuildError::Hydraulics(e),
-                    ))
-                    .into_iter()
-                    .map(|mut p| {
-                        p.path =
-                            p.path
-                                .replacen("outlet.fixed[0]", &format!("existing.fixed[{i}]"), 1);
-                        p
-                    })
-                    .collect::<Vec<_>>()
-                })?;
-                list.push(st);
-            }
+            // Each structure passed `outlet_problems` already; an error here is the list's.
+            let list = ex
+                .iter()
+                .map(|s| s.spec().build())
+                .collect::<Result<Vec<FixedStructure>, _>>()
+                .map_err(|e| one(problem("existing.fixed", format!(": {e}"))))?;
             Some(
                 Outlet::new(&list, None, f.outlet.tailwater_m)
                     .map_err(|e| one(problem("existing", format!(": {e}"))))?,
@@ -1191,8 +1174,7 @@ fn outlet_problems(spec: &PondSpec, existing: Option<&[StructureFile]>) -> Vec<P
         .enumerate()
         .filter_map(|(i, s)| structure(i, s))
         .collect();
-    let g = &spec.outlet.gate;
-    if let Err(e) = SluiceGate::new(g.sill_m, g.width_m, g.max_opening_m, g.cc, g.cv) {
+    if let Err(e) = spec.outlet.gate.build() {
         problems.push(map_build(SpecPart::Gate, &BuildError::Hydraulics(e)));
     }
     for (i, s) in existing.unwrap_or_default().iter().enumerate() {
@@ -1615,17 +1597,22 @@ mod tests {
 
     /// Mistakes in several parts of a file are all reported in one go (before, only the
     /// first was, so fixing a file took one run per mistake).
+    /// The refusals of a pond file that must not load, as printed.
+    fn refusals(text: &str) -> Vec<String> {
+        load_str(text)
+            .unwrap_err()
+            .iter()
+            .map(ToString::to_string)
+            .collect()
+    }
+
     #[test]
     fn mistakes_in_several_parts_are_reported_together() {
         let bad = DEMO_POND
             .replace("width_m = 0.60", "width_m = -0.4")
             .replacen("a_mm_h = 850.0", "a_mm_h = -850.0", 1)
             .replacen("c = 0.85", "c = 1.7", 1);
-        let e: Vec<String> = load_str(&bad)
-            .unwrap_err()
-            .iter()
-            .map(|p| p.to_string())
-            .collect();
+        let e = refusals(&bad);
         assert_eq!(e.len(), 3, "{e:?}");
         assert!(
             e.iter()
@@ -1653,11 +1640,7 @@ mod tests {
             .replacen("cd = 0.95", "cd = 1.5", 1)
             .replace("width_m = 0.60", "width_m = -0.4")
             .replacen("diameter_m = 0.45", "diameter_m = 0.0", 1);
-        let e: Vec<String> = load_str(&bad)
-            .unwrap_err()
-            .iter()
-            .map(|p| p.to_string())
-            .collect();
+        let e = refusals(&bad);
         assert_eq!(e.len(), 4, "{e:?}");
         for want in [
             "outlet.fixed[0].diameter_m = -0.1",

@@ -37,9 +37,8 @@ impl Rng {
         (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
     }
     /// Standard normal: the ziggurat method of `rand_distr` (Marsaglia & Tsang 2000, as
-    /// modified by Doornik 2005) on this generator's bits. About a tenth of the cost of the
-    /// Box–Muller transform used before (a logarithm and a cosine per sample), which was a
-    /// twelfth of a quiet step of a long replay; the sequence is a different one.
+    /// modified by Doornik 2005) on this generator's bits; it takes no logarithm or cosine
+    /// per sample, as the Box–Muller transform does, which matters in a long replay.
     pub fn normal(&mut self) -> f64 {
         rand_distr::Distribution::<f64>::sample(&rand_distr::StandardNormal, self)
     }

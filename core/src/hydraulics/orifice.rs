@@ -151,16 +151,18 @@ impl CircularOrifice {
     ///
     /// For `u ≤ 1/2` the excess is `θ − sin θ = u^1.5·g(u)`, `g` analytic on `|u| < 1`
     /// (`g(0) = 32/3`); [`SEGMENT_G`] is a degree-11 fit of `g` on `[0, 1/2]`, so the excess
-    /// costs one square root and a polynomial ([`segment_g`]), with full f32 precision at every depth (the
-    /// shallow end included, where a direct `θ − sin θ` cancels). Above half full the
-    /// segment is the circle less the dry segment above the water: `2π − (1 − u)^1.5·g(1 − u)`,
-    /// `1 − u` exact there.
+    /// costs one square root and a polynomial ([`segment_g`]), with full f32 precision at
+    /// every depth (the shallow end included, where a direct `θ − sin θ` cancels). Above half
+    /// full the segment is the circle less the dry segment above the water:
+    /// `2π − (1 − u)^1.5·g(1 − u)`, `1 − u` exact there.
     #[inline]
     fn wetted_area_m2(&self, y: f32) -> f32 {
         let d = self.diameter_m;
         let u = math::clamp(y / d, 0.0, 1.0);
         let (v, above_half) = if u > 0.5 { (1.0 - u, true) } else { (u, false) };
         let g = segment_g(v);
+        // `v^1.5` without `math::pow1_5`'s guards: v is in [0, 1/2] here (38 instructions a
+        // step of a long replay).
         let dry_or_wet = v * math::sqrt(v) * g;
         let excess = if above_half {
             2.0 * core::f32::consts::PI - dry_or_wet
@@ -262,8 +264,8 @@ mod tests {
 
     /// The segment polynomial gives the circle's wetted area over the whole depth, to f32
     /// precision: against `r²·acos((r − y)/r) − (r − y)·√(2ry − y²)` in f64 (the segment
-    /// area of plane geometry, different algebra from the fit),
-    /// y/D from 1e-5 to 1 − 1e-5, within 4e-7 relative; full at the soffit and continuous at half full.
+    /// area of plane geometry, different algebra from the fit), y/D from 1e-5 to 1 − 1e-5,
+    /// within 4e-7 relative; full at the soffit and continuous at half full.
     #[test]
     fn wetted_area_is_the_circular_segment() {
         let d = 0.45_f32;
