@@ -110,6 +110,7 @@ use crate::hydraulics::Outlet;
 use crate::rain::{Idf, RainGauge};
 use crate::routing::{self, Inflow};
 use crate::runoff::TimeAreaInflow;
+use crate::storage::StageStorage;
 use actuator::Actuator;
 use faults::{FaultTracker, GateMonitor};
 use filter::StageMonitor;
@@ -387,54 +388,82 @@ pub struct Controller {
     memo: Memo,
 }
 
-/// Slots of [`Memo`] (a power of two).
-const MEMO_SLOTS: usize = 64;
-
-/// The controller's outlet evaluations, kept across steps by the bits of their stage and
-/// opening: a direct-mapped cache of `MEMO_SLOTS` answers. The outlet is a pure function of
-/// stage and opening and the controller always steps with the configuration it was built
-/// with, so an answer found here is the one a new evaluation would give, bit for bit. The
-/// stage the controller uses is a filter of quantised readings: in dry weather it takes a
-/// few values over and over, and most evaluations are found here.
+/// Answers of a pure function kept by the bits of its arguments: a direct-mapped cache of
+/// `N` slots (a power of two, at most 64). The controller always steps with the
+/// configuration it was built with, and the pond's and outlet's functions are pure, so an
+/// answer found here is the one a new evaluation would give, bit for bit. The stage the
+/// controller uses is a filter of quantised readings: in dry weather it takes a few values
+/// over and over, and most evaluations are found here.
 #[derive(Debug, Clone, Copy)]
-struct Memo {
-    keys: [(u32, u32); MEMO_SLOTS],
-    q: [f32; MEMO_SLOTS],
+struct Recall<const N: usize> {
+    keys: [u64; N],
+    answers: [f32; N],
     /// One bit a slot: set when the slot holds an answer.
     valid: u64,
 }
 
-impl Default for Memo {
+impl<const N: usize> Default for Recall<N> {
     fn default() -> Self {
         Self {
-            keys: [(0, 0); MEMO_SLOTS],
-            q: [0.0; MEMO_SLOTS],
+            keys: [0; N],
+            answers: [0.0; N],
             valid: 0,
         }
     }
 }
 
-impl Memo {
-    /// `outlet.discharge_m3s(h, a)`, evaluated only when `(h, a)` is not in its slot.
-    fn q(&mut self, outlet: &Outlet, h: f32, a: f32) -> f32 {
-        let key = (h.to_bits(), a.to_bits());
-        // Fibonacci hashing of both keys; the top bits pick the slot.
-        let mix = (key.0 ^ key.1.rotate_left(16)).wrapping_mul(0x9E37_79B1);
-        let slot = (mix >> 26) as usize % MEMO_SLOTS;
-        let bit = 1u64 << slot;
+impl<const N: usize> Recall<N> {
+    /// The answer kept for `key`, else `f()` (kept in the key's slot).
+    #[inline]
+    fn get(&mut self, key: u64, f: impl FnOnce() -> f32) -> f32 {
+        // Fibonacci hashing: the top bits of the product pick the slot.
+        let slot = ((key.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 32) as usize)
+            .checked_rem(N)
+            .unwrap_or(0);
+        let bit = 1u64 << (slot % 64);
         if self.valid & bit != 0
             && self.keys.get(slot) == Some(&key)
-            && let Some(q) = self.q.get(slot)
+            && let Some(q) = self.answers.get(slot)
         {
             return *q;
         }
-        let q = outlet.discharge_m3s(h, a);
-        if let (Some(k), Some(v)) = (self.keys.get_mut(slot), self.q.get_mut(slot)) {
+        let q = f();
+        if let (Some(k), Some(v)) = (self.keys.get_mut(slot), self.answers.get_mut(slot)) {
             *k = key;
             *v = q;
             self.valid |= bit;
         }
         q
+    }
+}
+
+/// The outlet's and the pond's answers the controller asks for at its stage (see
+/// [`Recall`]): the release at a stage and opening is asked for more than once a step
+/// (trend, the mode's opening, the release estimate), and all of them at the same few
+/// filtered stages step after step in dry weather.
+#[derive(Debug, Clone, Copy, Default)]
+struct Memo {
+    release: Recall<64>,
+    storage: Recall<32>,
+    area: Recall<32>,
+}
+
+impl Memo {
+    /// `outlet.discharge_m3s(h, a)`.
+    fn q(&mut self, outlet: &Outlet, h: f32, a: f32) -> f32 {
+        let key = (u64::from(h.to_bits()) << 32) | u64::from(a.to_bits());
+        self.release.get(key, || outlet.discharge_m3s(h, a))
+    }
+
+    /// `pond.storage_m3(h)`.
+    fn storage(&mut self, pond: &StageStorage, h: f32) -> f32 {
+        self.storage
+            .get(u64::from(h.to_bits()), || pond.storage_m3(h))
+    }
+
+    /// `pond.area_m2(h)`.
+    fn area(&mut self, pond: &StageStorage, h: f32) -> f32 {
+        self.area.get(u64::from(h.to_bits()), || pond.area_m2(h))
     }
 }
 
@@ -1061,7 +1090,7 @@ impl Controller {
         let (stage_m, guard_m) = match (trusted, self.stage.filtered_m()) {
             (true, Some(h)) => {
                 let latest = self.stage.latest_m().unwrap_or(h);
-                self.est_storage_m3 = Some(pond.storage_m3(h));
+                self.est_storage_m3 = Some(self.memo.storage(pond, h));
                 (Some(h), Some(h.max(latest)))
             }
             _ => {
@@ -1093,7 +1122,7 @@ impl Controller {
                 let q_out = self.memo.q(outlet, h, position_m);
                 match self.trend_storage_m3 {
                     Some(s0) => {
-                        let area = pond.area_m2(h).max(1.0);
+                        let area = self.memo.area(pond, h).max(1.0);
                         self.rising = (s - s0) / area > RISE_M;
                         self.rise_m_s = sane((s - s0) / area / span);
                         self.inflow_est_m3s = sane((s - s0) / span + q_out);
@@ -1378,18 +1407,24 @@ mod memo_tests {
     use super::*;
     use crate::hydraulics::{CircularOrifice, Riser, SluiceGate, Spillway};
 
-    /// The cache answers every query with the outlet's own answer, bit for bit, through hits,
-    /// misses and slot collisions (the controller's decisions must not depend on whether an
-    /// answer was kept): 20,000 queries drawn from 300 stages (some repeated, as a filtered
-    /// quantised stage repeats) and 7 openings, on an outlet of orifice, riser, spillway and
-    /// gate. The reference is the direct evaluation.
+    /// The caches answer every query with the outlet's and the pond's own answers, bit for
+    /// bit, through hits, misses and slot collisions (the controller's decisions must not
+    /// depend on whether an answer was kept): 20,000 queries drawn from 300 stages (some
+    /// repeated, as a filtered quantised stage repeats) and 7 openings, on an outlet of
+    /// orifice, riser, spillway and gate and a frustum pond. The reference is the direct
+    /// evaluation.
     #[test]
-    fn memo_gives_the_outlets_answer_bit_for_bit() {
+    fn memo_gives_the_outlets_and_ponds_answers_bit_for_bit() {
         let o = CircularOrifice::new(100.0, 0.15, 0.6).unwrap();
         let r = Riser::circular(101.8, 1.2, 0.6, 0.6).unwrap();
         let s = Spillway::new(102.6, 8.0, 3.0, 0.9).unwrap();
         let g = SluiceGate::new(100.0, 0.6, 0.6, 0.61, 0.98).unwrap();
         let outlet = Outlet::new(&[o.into(), r.into(), s.into()], Some(g), Some(100.1)).unwrap();
+        let pond = StageStorage::from_areas(
+            &[(100.0, 1500.0), (101.0, 2750.0), (103.0, 5850.0)],
+            crate::storage::VolumeMethod::Frustum,
+        )
+        .unwrap();
         let mut memo = Memo::default();
         let mut x = 0x2545_f491_u32;
         let mut hits = 0;
@@ -1406,6 +1441,10 @@ mod memo_tests {
             }
             let want = outlet.discharge_m3s(h, a);
             assert_eq!(memo.q(&outlet, h, a).to_bits(), want.to_bits(), "h {h} a {a}");
+            let want = pond.storage_m3(h);
+            assert_eq!(memo.storage(&pond, h).to_bits(), want.to_bits(), "h {h}");
+            let want = pond.area_m2(h);
+            assert_eq!(memo.area(&pond, h).to_bits(), want.to_bits(), "h {h}");
         }
         assert!(hits > 10_000, "the queries repeat ({hits} repeats)");
     }
