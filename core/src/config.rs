@@ -70,6 +70,11 @@ fn inconsistent(field: &'static str, value: f32, rule: &'static str) -> ConfigEr
     ConfigError::Inconsistent { field, value, rule }
 }
 
+/// A number's own rule as a config rule.
+fn own(r: Result<f32, Invalid>) -> Result<(), ConfigError> {
+    r.map(drop).map_err(ConfigError::from)
+}
+
 /// The pond's IDF relation, in either published form.
 // No heap in the core, so no `Box`: the config holds one of these, ~1 KiB at most.
 #[allow(clippy::large_enum_variant)]
@@ -260,167 +265,228 @@ pub const MAX_HORIZON_STEPS: u32 = 64;
 pub const MAX_MOVES_PER_HOUR: usize = 64;
 
 impl PondConfig {
-    /// Validates `parts` (every number, then the rules between them).
+    /// Validates `parts` (every number, then the rules between them) and returns the config,
+    /// or the first rule broken in the order of [`PondConfig::each_problem`].
     pub fn new(parts: PondParts) -> Result<PondConfig, ConfigError> {
+        let mut first = None;
+        Self::each_problem(&parts, &mut |e| {
+            first.get_or_insert(e);
+        });
+        match first {
+            Some(e) => Err(e),
+            None => Ok(PondConfig { parts }),
+        }
+    }
+
+    /// Reports every rule of [`PondConfig::new`] that `parts` breaks, in order, so that a
+    /// tool can list all the mistakes of a description at once. A rule between fields is
+    /// checked only once the fields it compares have passed their own rules (a zero step is
+    /// reported as zero, not also as not dividing the runoff step).
+    pub fn each_problem(parts: &PondParts, report: &mut dyn FnMut(ConfigError)) {
+        let mut note = |r: Result<(), ConfigError>| {
+            if let Err(e) = r {
+                report(e);
+            }
+        };
         let floor = parts.storage.floor_m();
-        let gate = parts.outlet.gate().ok_or(ConfigError::NoGate)?;
+        let gate = parts.outlet.gate();
+        if gate.is_none() {
+            note(Err(ConfigError::NoGate));
+        }
         let l = &parts.levels;
-        validate::finite("levels.normal_m", l.normal_m)?;
-        validate::finite("levels.crest_m", l.crest_m)?;
-        validate::non_negative("levels.freeboard_m", l.freeboard_m)?;
-        if l.normal_m < floor {
-            return Err(inconsistent(
+        let normal_ok = validate::finite("levels.normal_m", l.normal_m);
+        let crest_ok = validate::finite("levels.crest_m", l.crest_m);
+        let freeboard_ok = validate::non_negative("levels.freeboard_m", l.freeboard_m);
+        let levels_ok = normal_ok.is_ok() && crest_ok.is_ok() && freeboard_ok.is_ok();
+        // Normal below the planned highest stage: the deadband rule compares against it.
+        let below_limit = l.normal_m < l.crest_m - l.freeboard_m;
+        note(own(normal_ok));
+        note(own(crest_ok));
+        note(own(freeboard_ok));
+        if levels_ok && l.normal_m < floor {
+            note(Err(inconsistent(
                 "levels.normal_m",
                 l.normal_m,
                 "must not be below the floor of the stage-storage table",
-            ));
+            )));
         }
-        if l.normal_m >= l.crest_m - l.freeboard_m {
-            return Err(inconsistent(
+        if levels_ok && !below_limit {
+            note(Err(inconsistent(
                 "levels.normal_m",
                 l.normal_m,
                 "must be below crest_m - freeboard_m",
-            ));
+            )));
         }
-        validate::positive("permit.release_m3s", parts.permit.release_m3s)?;
-        validate::within(
+        note(own(validate::positive(
+            "permit.release_m3s",
+            parts.permit.release_m3s,
+        )));
+        note(own(validate::within(
             "permit.margin",
             parts.permit.margin,
             0.0,
             0.5,
             "must be in [0, 0.5]",
-        )?;
+        )));
         let safe = parts.safe.safe_opening_m;
-        if !(safe.is_finite() && (0.0..=gate.max_opening_m()).contains(&safe)) {
-            return Err(inconsistent(
+        if let Some(g) = gate
+            && !(safe.is_finite() && (0.0..=g.max_opening_m()).contains(&safe))
+        {
+            note(Err(inconsistent(
                 "safe.safe_opening_m",
                 safe,
                 "must be in [0, the gate's max_opening_m]",
-            ));
+            )));
         }
-        Self::check_control(&parts.control)?;
+        let c = &parts.control;
+        Self::check_control(c, &mut note);
         // A deadband as deep as the pond between normal and crest would never let the gate
-        // move at all (the deadband is finite and non-negative here: checked just above).
-        if parts.control.deadband_m >= l.crest_m - l.normal_m {
-            return Err(inconsistent(
+        // move at all.
+        if levels_ok && below_limit && c.deadband_m >= l.crest_m - l.normal_m {
+            note(Err(inconsistent(
                 "control.deadband_m",
-                parts.control.deadband_m,
+                c.deadband_m,
                 "must be below levels.crest_m - levels.normal_m",
-            ));
+            )));
         }
-        Self::check_steps(&parts.control, parts.catchment.dt_s())?;
-        Self::check_sensors(&parts.sensors, floor, l.crest_m)?;
-        Ok(PondConfig { parts })
+        if c.step_s > 0 && (1..=3600).contains(&c.forecast_step_s) {
+            Self::check_steps(c, parts.catchment.dt_s(), &mut note);
+        }
+        Self::check_sensors(&parts.sensors, floor, l.crest_m, &mut note);
     }
 
-    fn check_control(c: &ControlSettings) -> Result<(), ConfigError> {
-        let pos = |field: &'static str, v: u32| {
+    /// The control settings' own rules.
+    fn check_control(c: &ControlSettings, note: &mut impl FnMut(Result<(), ConfigError>)) {
+        for (field, v) in [
+            ("control.step_s", c.step_s),
+            ("control.forecast_every_s", c.forecast_every_s),
+            ("control.horizon_s", c.horizon_s),
+            ("control.forecast_step_s", c.forecast_step_s),
+            ("control.drawdown_target_s", c.drawdown_target_s),
+            ("control.inter_event_s", c.inter_event_s),
+            ("control.manual_max_s", c.manual_max_s),
+        ] {
             if v == 0 {
-                Err(ConfigError::Invalid(Invalid {
+                note(Err(ConfigError::Invalid(Invalid {
                     field,
                     value: 0.0,
                     rule: "must be > 0 s",
-                }))
-            } else {
-                Ok(())
+                })));
             }
-        };
-        pos("control.step_s", c.step_s)?;
-        pos("control.forecast_every_s", c.forecast_every_s)?;
-        pos("control.horizon_s", c.horizon_s)?;
-        pos("control.forecast_step_s", c.forecast_step_s)?;
-        pos("control.drawdown_target_s", c.drawdown_target_s)?;
-        pos("control.inter_event_s", c.inter_event_s)?;
-        pos("control.manual_max_s", c.manual_max_s)?;
-        if c.horizon_s.div_ceil(c.forecast_step_s) > MAX_HORIZON_STEPS {
-            return Err(inconsistent(
+        }
+        if c.forecast_step_s > 0 && c.horizon_s.div_ceil(c.forecast_step_s) > MAX_HORIZON_STEPS {
+            note(Err(inconsistent(
                 "control.horizon_s",
                 c.horizon_s as f32,
                 "must be at most 64 forecast steps (raise control.forecast_step_s)",
-            ));
+            )));
         }
-        if c.min_detention_s >= c.drawdown_target_s {
-            return Err(inconsistent(
+        if c.drawdown_target_s > 0 && c.min_detention_s >= c.drawdown_target_s {
+            note(Err(inconsistent(
                 "control.min_detention_s",
                 c.min_detention_s as f32,
                 "must be below control.drawdown_target_s",
-            ));
+            )));
         }
-        validate::non_negative("control.design_return_period_yr", c.design_return_period_yr)?;
-        validate::non_negative("control.deadband_m", c.deadband_m)?;
-        validate::positive("control.max_rate_m_s", c.max_rate_m_s)?;
+        for r in [
+            validate::non_negative("control.design_return_period_yr", c.design_return_period_yr),
+            validate::non_negative("control.deadband_m", c.deadband_m),
+            validate::positive("control.max_rate_m_s", c.max_rate_m_s),
+        ] {
+            note(own(r));
+        }
         if c.max_moves_per_hour == 0 || usize::from(c.max_moves_per_hour) > MAX_MOVES_PER_HOUR {
-            return Err(ConfigError::Invalid(Invalid {
+            note(Err(ConfigError::Invalid(Invalid {
                 field: "control.max_moves_per_hour",
                 value: f32::from(c.max_moves_per_hour),
                 rule: "must be in 1..=64",
-            }));
+            })));
         }
         if c.forecast_step_s > 3600 {
-            return Err(inconsistent(
+            note(Err(inconsistent(
                 "control.forecast_step_s",
                 c.forecast_step_s as f32,
                 "must be at most 3600 s",
-            ));
+            )));
         }
-        Ok(())
     }
 
     /// The rules between the control periods and the catchment's runoff step: the runoff step
     /// is a whole number of control steps, and the forecast step a whole number of runoff steps.
-    fn check_steps(c: &ControlSettings, runoff_dt_s: u32) -> Result<(), ConfigError> {
+    fn check_steps(
+        c: &ControlSettings,
+        runoff_dt_s: u32,
+        note: &mut impl FnMut(Result<(), ConfigError>),
+    ) {
         if !runoff_dt_s.is_multiple_of(c.step_s) {
-            return Err(inconsistent(
+            note(Err(inconsistent(
                 "control.step_s",
                 c.step_s as f32,
                 "must divide the catchment response's time step",
-            ));
+            )));
         }
         if !c.forecast_step_s.is_multiple_of(runoff_dt_s) {
-            return Err(inconsistent(
+            note(Err(inconsistent(
                 "control.forecast_step_s",
                 c.forecast_step_s as f32,
                 "must be a whole multiple of the catchment response's time step",
-            ));
+            )));
         }
-        Ok(())
     }
 
-    fn check_sensors(s: &SensorLimits, floor_m: f32, crest_m: f32) -> Result<(), ConfigError> {
-        validate::finite("sensors.stage_min_m", s.stage_min_m)?;
-        validate::finite("sensors.stage_max_m", s.stage_max_m)?;
-        if s.stage_min_m > floor_m {
-            return Err(inconsistent(
+    fn check_sensors(
+        s: &SensorLimits,
+        floor_m: f32,
+        crest_m: f32,
+        note: &mut impl FnMut(Result<(), ConfigError>),
+    ) {
+        let min_ok = validate::finite("sensors.stage_min_m", s.stage_min_m).is_ok();
+        let max_ok = validate::finite("sensors.stage_max_m", s.stage_max_m).is_ok();
+        for r in [
+            validate::finite("sensors.stage_min_m", s.stage_min_m),
+            validate::finite("sensors.stage_max_m", s.stage_max_m),
+        ] {
+            note(own(r));
+        }
+        if min_ok && s.stage_min_m > floor_m {
+            note(Err(inconsistent(
                 "sensors.stage_min_m",
                 s.stage_min_m,
                 "must not be above the pond floor (the sensor must read an empty pond)",
-            ));
+            )));
         }
-        if s.stage_max_m <= crest_m {
-            return Err(inconsistent(
+        if max_ok && s.stage_max_m <= crest_m {
+            note(Err(inconsistent(
                 "sensors.stage_max_m",
                 s.stage_max_m,
                 "must be above levels.crest_m (the sensor must read an overtopping pond)",
-            ));
+            )));
         }
-        validate::positive("sensors.max_stage_rate_m_s", s.max_stage_rate_m_s)?;
-        validate::positive("sensors.spike_m", s.spike_m)?;
-        validate::positive("sensors.position_tolerance_m", s.position_tolerance_m)?;
+        for r in [
+            validate::positive("sensors.max_stage_rate_m_s", s.max_stage_rate_m_s),
+            validate::positive("sensors.spike_m", s.spike_m),
+            validate::positive("sensors.position_tolerance_m", s.position_tolerance_m),
+        ] {
+            note(own(r));
+        }
         if s.stuck_s == 0 || s.move_timeout_s == 0 || s.missing_steps == 0 {
-            return Err(inconsistent(
+            note(Err(inconsistent(
                 "sensors",
                 0.0,
                 "stuck_s, move_timeout_s and missing_steps must all be > 0",
-            ));
+            )));
         }
-        validate::non_negative("sensors.noise_m", s.noise_m)?;
+        note(own(validate::non_negative("sensors.noise_m", s.noise_m)));
         // The controller builds its gauge from these settings: they must pass the gauge's own
         // checks (bucket, plausible intensity, spread cap, clog and dry times).
-        crate::rain::RainGauge::<1>::new(&s.gauge, &[3600]).map_err(|e| match e {
-            crate::rain::RainError::Invalid(i) => ConfigError::Invalid(i),
-            _ => inconsistent("sensors.gauge", 0.0, "rejected by the rain gauge"),
-        })?;
-        Ok(())
+        note(
+            crate::rain::RainGauge::<1>::new(&s.gauge, &[3600])
+                .map(drop)
+                .map_err(|e| match e {
+                    crate::rain::RainError::Invalid(i) => ConfigError::Invalid(i),
+                    _ => inconsistent("sensors.gauge", 0.0, "rejected by the rain gauge"),
+                }),
+        );
     }
 
     /// Stage–storage relation.

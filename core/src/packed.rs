@@ -695,13 +695,34 @@ impl PondSpec {
     // device image by about a kilobyte from one unrelated change to the next.
     #[inline(never)]
     pub fn build(&self) -> Result<PondConfig, PackError> {
+        PondConfig::new(self.parts()?).map_err(part(SpecPart::Config, BuildError::Config))
+    }
+
+    /// Every rule between the parts that this spec breaks ([`PondConfig::each_problem`], in
+    /// its order), once every part builds on its own; else the first part's error. For a tool
+    /// that lists all the mistakes at once, where [`PondSpec::build`] stops at the first.
+    pub fn each_problem(&self, report: &mut dyn FnMut(PackError)) {
+        match self.parts() {
+            Err(e) => report(e),
+            Ok(parts) => PondConfig::each_problem(&parts, &mut |e| {
+                report(PackError::Build {
+                    part: SpecPart::Config,
+                    error: BuildError::Config(e),
+                });
+            }),
+        }
+    }
+
+    /// The parts of the configuration, each through its constructor (the error names the
+    /// part), not yet checked against each other.
+    fn parts(&self) -> Result<PondParts, PackError> {
         let storage = self.build_storage()?;
         let outlet = self.build_outlet()?;
         let catchment = self.build_catchment()?;
         let response = TimeAreaResponse::from_catchment(&catchment, self.catchment.dt_s)
             .map_err(part(SpecPart::Catchment, BuildError::Runoff))?;
         let idf = self.build_idf()?;
-        PondConfig::new(PondParts {
+        Ok(PondParts {
             storage,
             outlet,
             levels: Levels {
@@ -721,7 +742,6 @@ impl PondSpec {
                 safe_opening_m: self.safe_opening_m,
             },
         })
-        .map_err(part(SpecPart::Config, BuildError::Config))
     }
 }
 
@@ -917,5 +937,39 @@ mod tests {
             format!("{e}"),
             "outlet.gate: width_m = -0.4: must be a finite length in (0, 1000] m"
         );
+    }
+
+    /// `each_problem` lists every rule between the parts that a spec breaks, in the order
+    /// `build` checks them, so `build`'s one error is the list's first; a sound spec has none.
+    /// (The rules and their order are the ones `PondConfig::new` documents; this checks the
+    /// listing, not the rules.)
+    #[test]
+    fn each_problem_lists_what_build_reports_first() {
+        let mut problems = std::vec::Vec::new();
+        spec().each_problem(&mut |e| problems.push(e));
+        assert!(problems.is_empty(), "{problems:?}");
+        let mut s = spec();
+        s.permit_margin = 0.7;
+        s.safe_opening_m = 5.0;
+        s.sensors.stage_max_m = 11.0;
+        s.control.step_s = 0;
+        let mut problems = std::vec::Vec::new();
+        s.each_problem(&mut |e| problems.push(format!("{e}")));
+        assert_eq!(
+            problems,
+            [
+                "pond: permit.margin = 0.7: must be in [0, 0.5]",
+                "pond: safe.safe_opening_m = 5: must be in [0, the gate's max_opening_m]",
+                "pond: control.step_s = 0: must be > 0 s",
+                "pond: sensors.stage_max_m = 11: must be above levels.crest_m (the sensor must \
+                 read an overtopping pond)",
+            ]
+        );
+        assert_eq!(format!("{}", s.build().unwrap_err()), problems[0]);
+        // A part that does not build is the one error: the rules between parts need them all.
+        s.outlet.gate.width_m = -0.4;
+        let mut problems = std::vec::Vec::new();
+        s.each_problem(&mut |e| problems.push(e));
+        assert_eq!(problems, [s.build().unwrap_err()]);
     }
 }

@@ -1096,7 +1096,8 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
     };
     // The parts that stand alone are built one by one first, so that a file with mistakes
     // in several of them hears of all of them at once; the rules between parts (levels
-    // against the storage, steps against the catchment, ...) follow once the parts are sound.
+    // against the storage, steps against the catchment, ...) follow once the parts are
+    // sound, and are all reported too.
     // Within the outlet, every structure and the gate on their own first: the outlet's build
     // stops at its first refusal, which would hide the mistakes after it.
     let mut problems = outlet_problems(&spec, existing_fixed.as_deref());
@@ -1111,6 +1112,11 @@ fn build(f: &File) -> Result<Pond, Vec<Problem>> {
         spec.build_idf().err(),
     ];
     problems.extend(parts.into_iter().flatten().map(map_pack));
+    if !problems.is_empty() {
+        return Err(problems);
+    }
+    // Then every rule between the parts, all of them (the core's build stops at the first).
+    spec.each_problem(&mut |e| problems.push(map_pack(e)));
     if !problems.is_empty() {
         return Err(problems);
     }
@@ -1650,6 +1656,36 @@ mod tests {
         ] {
             assert!(e.iter().any(|p| p.starts_with(want)), "{want}: {e:?}");
         }
+    }
+
+    /// The rules between parts (levels against the storage, steps against the catchment,
+    /// sensor range against the crest, safe opening against the gate) are all reported in
+    /// one run, each naming its key, and a zero period is reported once, as zero, not again
+    /// as not dividing the runoff step.
+    #[test]
+    fn every_rule_between_parts_is_reported_together() {
+        let bad = DEMO_POND
+            .replace("normal_m = 41.00", "normal_m = 40.50")
+            .replace("margin = 0.05", "margin = 0.7")
+            .replace("step_s = 10\n", "step_s = 7\n")
+            .replace("stage_max_m = 44.50", "stage_max_m = 43.00")
+            .replace("safe_opening_m = 0.09", "safe_opening_m = 0.9")
+            .replace("inter_event_s = 21600", "inter_event_s = 0");
+        let e = refusals(&bad);
+        for want in [
+            "levels.normal_m = 40.5: must not be below the floor",
+            "permit.margin = 0.7: must be in [0, 0.5]",
+            "safe.safe_opening_m = 0.9: must be in [0, the gate's max_opening_m]",
+            "control.inter_event_s = 0: must be > 0 s",
+            "control.step_s = 7: must divide",
+            "sensors.stage_max_m = 43: must be above levels.crest_m",
+        ] {
+            assert!(e.iter().any(|p| p.starts_with(want)), "{want}: {e:?}");
+        }
+        assert_eq!(e.len(), 6, "{e:?}");
+        // The zero step alone: reported as zero, and nothing else about steps.
+        let e = refusals(&DEMO_POND.replace("step_s = 10\n", "step_s = 0\n"));
+        assert_eq!(e, ["control.step_s = 0: must be > 0 s"], "{e:?}");
     }
 
     /// Legal but suspicious control settings are warned about, not refused.

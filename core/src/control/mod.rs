@@ -1440,7 +1440,11 @@ mod memo_tests {
                 hits += 1;
             }
             let want = outlet.discharge_m3s(h, a);
-            assert_eq!(memo.q(&outlet, h, a).to_bits(), want.to_bits(), "h {h} a {a}");
+            assert_eq!(
+                memo.q(&outlet, h, a).to_bits(),
+                want.to_bits(),
+                "h {h} a {a}"
+            );
             let want = pond.storage_m3(h);
             assert_eq!(memo.storage(&pond, h).to_bits(), want.to_bits(), "h {h}");
             let want = pond.area_m2(h);
