@@ -14,8 +14,10 @@
 //! With a third argument it also writes the fixed outlet's stage–storage–discharge table and
 //! the 1-minute inflow of the first year for `host-sim/bench/level_pool.py`. With
 //! `LONGRUN_POLICY=fixed` or `controller` in the environment only that run is made (for
-//! instruction counts, `scripts/icount-longrun.sh`); with `LONGRUN_QUIET=1` the record is one
-//! 50-mm storm and then dry (the cost of a quiet step).
+//! instruction counts, `scripts/icount-longrun.sh`), and `threshold` runs the level-threshold
+//! rule (same plant and sensors, no controller); with `LONGRUN_QUIET=1` the record is one
+//! 50-mm storm and then dry (the cost of a quiet step); `LONGRUN_FORECAST_S=N` sets
+//! `control.forecast_every_s` (a diagnostic: the benchmark keeps the demo pond's 60 s).
 
 use std::time::Instant;
 
@@ -96,7 +98,15 @@ fn main() {
         storm.rain_mm.len(),
         storm.total_mm()
     );
-    let src = DEMO_POND.replace("step_s = 10\n", "step_s = 60\n");
+    let mut src = DEMO_POND.replace("step_s = 10\n", "step_s = 60\n");
+    if let Ok(every) = std::env::var("LONGRUN_FORECAST_S") {
+        // A diagnostic, not the benchmark: the cost of forecasting less often.
+        src = src.replace(
+            "forecast_every_s = 60\n",
+            &format!("forecast_every_s = {every}\n"),
+        );
+        eprintln!("control.forecast_every_s = {every} (LONGRUN_FORECAST_S)");
+    }
     let pond = pondfile::load_str(&src).unwrap_or_else(|e| panic!("{}", e[0]));
     if let Some(out) = args.get(3) {
         write_python_inputs(&pond, &storm, out);
@@ -110,10 +120,18 @@ fn main() {
         forecast_at_s: Vec::new(),
     };
     let only = std::env::var("LONGRUN_POLICY").ok();
-    for kind in [PolicyKind::Fixed, PolicyKind::Controller]
-        .into_iter()
-        .filter(|k| only.as_deref().is_none_or(|o| o == k.name()))
-    {
+    // The level-threshold rule only when asked for: the same plant and sensor models with a
+    // policy of a few comparisons, so that its time less the controller's is the controller's.
+    for kind in [
+        PolicyKind::Fixed,
+        PolicyKind::Threshold,
+        PolicyKind::Controller,
+    ]
+    .into_iter()
+    .filter(|k| match only.as_deref() {
+        None => *k != PolicyKind::Threshold,
+        Some(o) => o == k.name(),
+    }) {
         let t0 = Instant::now();
         let r = sim::run(&pond, &storm, kind, &opts);
         let wall = t0.elapsed().as_secs_f64();
