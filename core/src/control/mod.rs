@@ -389,7 +389,7 @@ pub struct Controller {
 }
 
 /// Answers of a pure function kept by the bits of its arguments: a direct-mapped cache of
-/// `N` slots (a power of two, at most 64). The controller always steps with the
+/// `N` slots (1 to 64, checked when built). The controller always steps with the
 /// configuration it was built with, and the pond's and outlet's functions are pure, so an
 /// answer found here is the one a new evaluation would give, bit for bit. The stage the
 /// controller uses is a filter of quantised readings: in dry weather it takes a few values
@@ -413,9 +413,13 @@ impl<const N: usize> Default for Recall<N> {
 }
 
 impl<const N: usize> Recall<N> {
+    /// One valid bit a slot in a `u64`: at most 64 slots.
+    const FITS: () = assert!(N > 0 && N <= 64, "Recall holds 1 to 64 slots");
+
     /// The answer kept for `key`, else `f()` (kept in the key's slot).
     #[inline]
     fn get(&mut self, key: u64, f: impl FnOnce() -> f32) -> f32 {
+        let () = Self::FITS;
         // Fibonacci hashing: the top bits of the product pick the slot.
         let slot = ((key.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 32) as usize)
             .checked_rem(N)
@@ -1012,7 +1016,9 @@ impl Controller {
     }
 
     /// One control step at `now_s` (see the module doc). Pure: depends only on `cfg`,
-    /// `inputs`, `now_s` and the state.
+    /// `inputs`, `now_s` and the state. `cfg` must be the configuration the controller was
+    /// built with ([`Controller::new`]): the state holds its catchment response and answers
+    /// of its outlet and pond.
     pub fn step(&mut self, cfg: &PondConfig, inputs: &Inputs, now_s: u32) -> Outputs {
         let dt_s = now_s.saturating_sub(self.last_step_s).max(1);
         self.last_step_s = now_s;
