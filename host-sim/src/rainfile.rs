@@ -136,30 +136,9 @@ impl RainRecord {
     }
 }
 
-/// Days from 1970-01-01 of a proleptic Gregorian date (H. Hinnant's `days_from_civil`).
-pub fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
-    let y = if m <= 2 { y - 1 } else { y };
-    let era = y.div_euclid(400);
-    let yoe = y - era * 400;
-    let mp = (m + 9) % 12;
-    let doy = (153 * mp + 2) / 5 + d - 1;
-    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    era * 146_097 + doe - 719_468
-}
-
-/// The proleptic Gregorian date of a day count from 1970-01-01 (H. Hinnant's
-/// `civil_from_days`, the inverse of [`days_from_civil`]).
-pub fn civil_from_days(z: i64) -> (i64, i64, i64) {
-    let z = z + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let d = doy - (153 * mp + 2) / 5 + 1;
-    let m = if mp < 10 { mp + 3 } else { mp - 9 };
-    (yoe + era * 400 + i64::from(m <= 2), m, d)
-}
+// The calendar (H. Hinnant's `days_from_civil` and `civil_from_days`, proleptic Gregorian,
+// days from 1970-01-01) is the fleet review's: one copy for both tools.
+pub use holdback_review::time::{civil_from_days, days_from_civil};
 
 /// A time on the file's clock written the way the file writes it: `YYYY-MM-DD HH:MM` for
 /// calendar stamps, seconds or minutes otherwise.
