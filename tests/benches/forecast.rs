@@ -14,74 +14,17 @@ use std::hint::black_box;
 use std::time::Instant;
 
 use holdback_core::forecast::{
-    Forecaster, FutureRain, Limits, Outlook, Policy, predict, predict_release, release_to_hold,
+    Forecaster, Outlook, Policy, predict, predict_release, release_to_hold,
 };
-use holdback_core::hydraulics::*;
 use holdback_core::routing::{Inflow, step};
-use holdback_core::runoff::{
-    AreaHa, Catchment, RunoffCoefficient, SubCatchment, TimeAreaInflow, TimeAreaResponse,
-    TimeOfConcentration,
-};
-use holdback_core::storage::{BasinGeometry, StageStorage};
 
 /// Candidates per forecast in the cost target.
 const CANDIDATES: usize = 20;
 
-struct Scene {
-    pond: StageStorage,
-    outlet: Outlet,
-    runoff: TimeAreaInflow,
-    limits: Limits,
-    storage_m3: f32,
-}
-
-fn scene() -> Scene {
-    let pond = StageStorage::from_basin(BasinGeometry {
-        floor_m: 100.0,
-        length_m: 60.0,
-        width_m: 30.0,
-        side_slope_h_per_v: 3.0,
-        depth_m: 3.0,
-    })
-    .unwrap();
-    let orifice = CircularOrifice::new(100.0, 0.15, 0.6).unwrap();
-    let riser = Riser::circular(101.8, 1.2, 0.6, 0.6).unwrap();
-    let spillway = Spillway::new(102.6, 8.0, 3.0, 0.9).unwrap();
-    let gate = SluiceGate::new(100.0, 0.6, 0.6, 0.61, 0.98).unwrap();
-    let outlet = Outlet::new(
-        &[orifice.into(), riser.into(), spillway.into()],
-        Some(gate),
-        Some(100.1),
-    )
-    .unwrap();
-    let sub = SubCatchment::new(
-        RunoffCoefficient::new(0.55).unwrap(),
-        AreaHa::new(12.0).unwrap(),
-        TimeOfConcentration::from_s(1800).unwrap(),
-        120,
-    )
-    .unwrap();
-    let resp = TimeAreaResponse::from_catchment(&Catchment::new(&[sub]).unwrap(), 60).unwrap();
-    let mut runoff = TimeAreaInflow::new(resp);
-    for k in 0..40 {
-        runoff.push_step(0.2 + 0.01 * k as f32);
-    }
-    Scene {
-        pond,
-        outlet,
-        runoff,
-        limits: Limits::new(0.12, 102.4, 102.9).unwrap(),
-        storage_m3: 900.0,
-    }
-}
-
-const FUTURE: FutureRain = FutureRain::Persist {
-    intensity_mm_h: 25.0,
-    for_s: 3600,
-};
+use holdback_tests::ponds::{ForecastScene as Scene, forecast_scene as scene};
 
 fn build(s: &Scene) -> Outlook {
-    Outlook::from_time_area(&s.runoff, &FUTURE, None, 180, 3 * 3600).unwrap()
+    s.outlook()
 }
 
 #[inline(never)]

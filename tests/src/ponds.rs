@@ -5,12 +5,15 @@
 use holdback_core::config::{
     ControlSettings, IdfModel, Levels, Permit, PondConfig, PondParts, SafeSettings, SensorLimits,
 };
+use holdback_core::forecast::{FutureRain, Limits, Outlook};
+use holdback_core::hydraulics::Riser;
 use holdback_core::hydraulics::{
     CircularOrifice, FixedStructure, Outlet, RectangularWeir, SluiceGate, Spillway,
 };
 use holdback_core::rain::{GaugeSettings, IdfCurves, IdfFormula};
 use holdback_core::runoff::{
-    AreaHa, Catchment, RunoffCoefficient, SubCatchment, TimeAreaResponse, TimeOfConcentration,
+    AreaHa, Catchment, RunoffCoefficient, SubCatchment, TimeAreaInflow, TimeAreaResponse,
+    TimeOfConcentration,
 };
 use holdback_core::storage::{BasinGeometry, StageStorage, VolumeMethod};
 
@@ -163,4 +166,75 @@ pub fn all() -> [(&'static str, PondConfig); 2] {
             PondConfig::new(ashby_fen()).expect("ashby_fen"),
         ),
     ]
+}
+
+/// The invented forecast scene of `benches/forecast.rs`, `tests/forecast_fast.rs` and the
+/// board's forecast kernels (**demo data**): a side-sloped basin, an orifice, a riser, a
+/// spillway and a gate with a fixed tailwater, 12 ha at C = 0.55 with a 30 min Tc at a
+/// 60 s runoff step and 40 min of rain fallen, 900 m³ stored.
+pub struct ForecastScene {
+    /// The basin.
+    pub pond: StageStorage,
+    /// The composite outlet.
+    pub outlet: Outlet,
+    /// The catchment with its 40 min of rain.
+    pub runoff: TimeAreaInflow,
+    /// Permit 0.12 m³/s, stage limit 102.4 m, crest 102.9 m.
+    pub limits: Limits,
+    /// Stored at the start, m³.
+    pub storage_m3: f32,
+}
+
+/// The rain the forecast scene assumes to come: 25 mm/h persisting for an hour.
+pub const SCENE_FUTURE: FutureRain = FutureRain::Persist {
+    intensity_mm_h: 25.0,
+    for_s: 3600,
+};
+
+/// Builds the [`ForecastScene`].
+pub fn forecast_scene() -> ForecastScene {
+    let pond = StageStorage::from_basin(BasinGeometry {
+        floor_m: 100.0,
+        length_m: 60.0,
+        width_m: 30.0,
+        side_slope_h_per_v: 3.0,
+        depth_m: 3.0,
+    })
+    .unwrap();
+    let orifice = CircularOrifice::new(100.0, 0.15, 0.6).unwrap();
+    let riser = Riser::circular(101.8, 1.2, 0.6, 0.6).unwrap();
+    let spillway = Spillway::new(102.6, 8.0, 3.0, 0.9).unwrap();
+    let gate = SluiceGate::new(100.0, 0.6, 0.6, 0.61, 0.98).unwrap();
+    let outlet = Outlet::new(
+        &[orifice.into(), riser.into(), spillway.into()],
+        Some(gate),
+        Some(100.1),
+    )
+    .unwrap();
+    let sub = SubCatchment::new(
+        RunoffCoefficient::new(0.55).unwrap(),
+        AreaHa::new(12.0).unwrap(),
+        TimeOfConcentration::from_s(1800).unwrap(),
+        120,
+    )
+    .unwrap();
+    let resp = TimeAreaResponse::from_catchment(&Catchment::new(&[sub]).unwrap(), 60).unwrap();
+    let mut runoff = TimeAreaInflow::new(resp);
+    for k in 0..40 {
+        runoff.push_step(0.2 + 0.01 * k as f32);
+    }
+    ForecastScene {
+        pond,
+        outlet,
+        runoff,
+        limits: Limits::new(0.12, 102.4, 102.9).unwrap(),
+        storage_m3: 900.0,
+    }
+}
+
+impl ForecastScene {
+    /// The scene's outlook: [`SCENE_FUTURE`] over a 3 h horizon at 180 s.
+    pub fn outlook(&self) -> Outlook {
+        Outlook::from_time_area(&self.runoff, &SCENE_FUTURE, None, 180, 3 * 3600).unwrap()
+    }
 }

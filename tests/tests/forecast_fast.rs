@@ -13,18 +13,14 @@
 use holdback_core::G_M_S2;
 use holdback_core::flow::StageDischarge;
 use holdback_core::forecast::{
-    CAPACITY_TOLERANCE_REL, FixedFlowTable, ForecastStep, Forecaster, FutureRain,
-    HOLD_CAP_TOLERANCE_REL, HOLD_TOLERANCE_M3S, HOLD_TOLERANCE_REL, Limits, Outlook,
-    PEAK_STAGE_TOLERANCE_M, PEAK_STAGE_TOLERANCE_REL, Policy, RELEASE_TOLERANCE_IN_PLAY_REL,
-    RELEASE_TOLERANCE_REL, predict_release_traced, release_to_hold,
+    CAPACITY_TOLERANCE_REL, FixedFlowTable, ForecastStep, Forecaster, HOLD_CAP_TOLERANCE_REL,
+    HOLD_TOLERANCE_M3S, HOLD_TOLERANCE_REL, Limits, Outlook, PEAK_STAGE_TOLERANCE_M,
+    PEAK_STAGE_TOLERANCE_REL, Policy, RELEASE_TOLERANCE_IN_PLAY_REL, RELEASE_TOLERANCE_REL,
+    predict_release_traced, release_to_hold,
 };
 use holdback_core::hydraulics::{
     CircularOrifice, FixedStructure, Outlet, RectangularOrifice, RectangularWeir, Riser,
     SluiceGate, Spillway, VNotchWeir,
-};
-use holdback_core::runoff::{
-    AreaHa, Catchment, RunoffCoefficient, SubCatchment, TimeAreaInflow, TimeAreaResponse,
-    TimeOfConcentration,
 };
 use holdback_core::storage::{BasinGeometry, StageStorage, VolumeMethod};
 use proptest::prelude::*;
@@ -129,46 +125,12 @@ fn checks_scene() -> (StageStorage, Outlet) {
     (pond, Outlet::new(&[o.into()], Some(g), None).unwrap())
 }
 
-/// Invented scene of `tests/benches/forecast.rs` and the board's forecast kernels: a
-/// side-sloped basin, orifice + riser + spillway + gate with a fixed tailwater, 12 ha at
-/// C = 0.55, 40 min of rain fallen, 25 mm/h persisting for an hour; 3 h at 180 s.
+/// The invented scene of `tests/benches/forecast.rs` and the board's forecast kernels
+/// (`holdback_tests::ponds::forecast_scene`).
 fn bench_scene() -> (StageStorage, Outlet, Outlook, Limits) {
-    let pond = StageStorage::from_basin(BasinGeometry {
-        floor_m: 100.0,
-        length_m: 60.0,
-        width_m: 30.0,
-        side_slope_h_per_v: 3.0,
-        depth_m: 3.0,
-    })
-    .unwrap();
-    let orifice = CircularOrifice::new(100.0, 0.15, 0.6).unwrap();
-    let riser = Riser::circular(101.8, 1.2, 0.6, 0.6).unwrap();
-    let spillway = Spillway::new(102.6, 8.0, 3.0, 0.9).unwrap();
-    let gate = SluiceGate::new(100.0, 0.6, 0.6, 0.61, 0.98).unwrap();
-    let outlet = Outlet::new(
-        &[orifice.into(), riser.into(), spillway.into()],
-        Some(gate),
-        Some(100.1),
-    )
-    .unwrap();
-    let sub = SubCatchment::new(
-        RunoffCoefficient::new(0.55).unwrap(),
-        AreaHa::new(12.0).unwrap(),
-        TimeOfConcentration::from_s(1800).unwrap(),
-        120,
-    )
-    .unwrap();
-    let resp = TimeAreaResponse::from_catchment(&Catchment::new(&[sub]).unwrap(), 60).unwrap();
-    let mut runoff = TimeAreaInflow::new(resp);
-    for k in 0..40 {
-        runoff.push_step(0.2 + 0.01 * k as f32);
-    }
-    let future = FutureRain::Persist {
-        intensity_mm_h: 25.0,
-        for_s: 3600,
-    };
-    let look = Outlook::from_time_area(&runoff, &future, None, 180, 3 * 3600).unwrap();
-    (pond, outlet, look, Limits::new(0.12, 102.4, 102.9).unwrap())
+    let s = holdback_tests::ponds::forecast_scene();
+    let look = s.outlook();
+    (s.pond, s.outlet, look, s.limits)
 }
 
 /// The triangular storm of `forecast_checks.rs`: 0.9 m³/s peak after 45 min, 60 × 180 s.
