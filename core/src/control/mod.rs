@@ -395,30 +395,30 @@ pub struct Controller {
 /// controller uses is a filter of quantised readings: in dry weather it takes a few values
 /// over and over, and most evaluations are found here.
 #[derive(Debug, Clone, Copy)]
-struct Recall<const N: usize> {
+struct Recall<V, const N: usize> {
     keys: [u64; N],
-    answers: [f32; N],
+    answers: [V; N],
     /// One bit a slot: set when the slot holds an answer.
     valid: u64,
 }
 
-impl<const N: usize> Default for Recall<N> {
+impl<V: Copy + Default, const N: usize> Default for Recall<V, N> {
     fn default() -> Self {
         Self {
             keys: [0; N],
-            answers: [0.0; N],
+            answers: [V::default(); N],
             valid: 0,
         }
     }
 }
 
-impl<const N: usize> Recall<N> {
+impl<V: Copy, const N: usize> Recall<V, N> {
     /// One valid bit a slot in a `u64`: at most 64 slots.
     const FITS: () = assert!(N > 0 && N <= 64, "Recall holds 1 to 64 slots");
 
     /// The answer kept for `key`, else `f()` (kept in the key's slot).
     #[inline]
-    fn get(&mut self, key: u64, f: impl FnOnce() -> f32) -> f32 {
+    fn get(&mut self, key: u64, f: impl FnOnce() -> V) -> V {
         let () = Self::FITS;
         // Fibonacci hashing: the top bits of the product pick the slot.
         let slot = ((key.wrapping_mul(0x9E37_79B9_7F4A_7C15) >> 32) as usize)
@@ -447,9 +447,9 @@ impl<const N: usize> Recall<N> {
 /// filtered stages step after step in dry weather.
 #[derive(Debug, Clone, Copy, Default)]
 struct Memo {
-    release: Recall<64>,
-    storage: Recall<32>,
-    area: Recall<32>,
+    release: Recall<f32, 64>,
+    /// Storage and plan area at a stage (the trend asks for both at the filtered stage).
+    stage: Recall<(f32, f32), 32>,
 }
 
 impl Memo {
@@ -459,15 +459,21 @@ impl Memo {
         self.release.get(key, || outlet.discharge_m3s(h, a))
     }
 
+    /// `pond.storage_m3(h)` and `pond.area_m2(h)`.
+    fn at_stage(&mut self, pond: &StageStorage, h: f32) -> (f32, f32) {
+        self.stage.get(u64::from(h.to_bits()), || {
+            (pond.storage_m3(h), pond.area_m2(h))
+        })
+    }
+
     /// `pond.storage_m3(h)`.
     fn storage(&mut self, pond: &StageStorage, h: f32) -> f32 {
-        self.storage
-            .get(u64::from(h.to_bits()), || pond.storage_m3(h))
+        self.at_stage(pond, h).0
     }
 
     /// `pond.area_m2(h)`.
     fn area(&mut self, pond: &StageStorage, h: f32) -> f32 {
-        self.area.get(u64::from(h.to_bits()), || pond.area_m2(h))
+        self.at_stage(pond, h).1
     }
 }
 
