@@ -199,6 +199,11 @@ struct StormArgs {
     /// --inter-event-s of dry time; the replay starts from the normal level.
     #[arg(long)]
     event: Option<usize>,
+    /// With --event N: start the replay at the first of the events before N that each ended
+    /// less than the pond's drawdown target before the next began, so that the water they
+    /// left carries over into N (the summary then covers them all).
+    #[arg(long, requires = "event")]
+    carry_over: bool,
     /// Dry time that separates events, s (default: the pond's control.inter_event_s).
     #[arg(long)]
     inter_event_s: Option<u32>,
@@ -657,8 +662,9 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Option<Storm>, Fail> {
         events.len()
     );
     let mut notes = Vec::new();
-    let rain = match a.event {
-        None => rec.rain_mm.clone(),
+    // The rain replayed and, for --event, the number of the first event in it.
+    let (rain, first_event) = match a.event {
+        None => (rec.rain_mm.clone(), None),
         Some(n) => {
             let i = n
                 .checked_sub(1)
@@ -677,14 +683,39 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Option<Storm>, Fail> {
                 e.depth_mm
             );
             let drawdown_s = i64::from(p.config.control().drawdown_target_s);
-            if let Some(d) = dry_before_s(i).filter(|&d| d < drawdown_s) {
+            let undrained = |k: usize| dry_before_s(k).filter(|&d| d < drawdown_s);
+            // With --carry-over, back to the first event of the chain that began with the pond
+            // drained (at least the drawdown target dry before it, or the record's start).
+            let mut first = i;
+            while a.carry_over && first > 0 && undrained(first).is_some() {
+                first -= 1;
+            }
+            if first < i {
                 notes.push(format!(
-                    "event {n} is replayed from the normal level, but the event before it ended only {:.1} h earlier, less than the {:.1} h drawdown target: the pond may not have been empty when it began (replay the whole record to carry the water over)",
+                    "event {n} is replayed from event {} ({}), the first of the events before it that each followed the last by less than the {:.1} h drawdown target, so the water they left carries over; the summary covers events {}-{n}",
+                    first + 1,
+                    clock(events[first].first_step),
+                    drawdown_s as f64 / 3600.0,
+                    first + 1
+                ));
+            }
+            if let Some(d) = undrained(first) {
+                notes.push(format!(
+                    "event {} is replayed from the normal level, but the event before it ended only {:.1} h earlier, less than the {:.1} h drawdown target: the pond may not have been empty when it began (--carry-over replays the events before it too; the whole record carries all the water over)",
+                    first + 1,
                     d as f64 / 3600.0,
                     drawdown_s as f64 / 3600.0
                 ));
             }
-            rec.rain_mm[e.first_step..e.end_step].to_vec()
+            if first == 0 && a.carry_over && i > 0 {
+                notes.push(
+                    "the chain begins with the record's first event: the record says nothing of the pond before it".to_string(),
+                );
+            }
+            (
+                rec.rain_mm[events[first].first_step..e.end_step].to_vec(),
+                Some(first + 1),
+            )
         }
     };
     if !rec.bad_rows.is_empty() {
@@ -705,9 +736,10 @@ fn storm_from(p: &Pond, a: &StormArgs) -> Result<Option<Storm>, Fail> {
         ));
     }
     Ok(Some(Storm {
-        name: match a.event {
-            Some(n) => format!("{name} event {n}"),
-            None => name,
+        name: match (a.event, first_event) {
+            (Some(n), Some(m)) if m < n => format!("{name} events {m}-{n}"),
+            (Some(n), _) => format!("{name} event {n}"),
+            (None, _) => name,
         },
         dt_s: rec.dt_s,
         rain_mm: rain,

@@ -439,6 +439,80 @@ fn recorded_rain_is_split_into_events_and_replayed() {
     assert!(csv.starts_with("t_s,rain_mm,inflow_m3s,stage_m,stage_read_m,storage_m3"));
 }
 
+/// `--event N --carry-over` replays from the first of the events before N that followed each
+/// other by less than the drawdown target (in the Singapore excerpt, the 0.4 mm shower that
+/// ended 2.75 h before event 2), so the water they left carries over: the summary's rain is
+/// both events' (0.4 + 71.4 mm, as `--list-events` gives them), its storm is named for both,
+/// and the notes say where the replay began and that nothing is known before the record's
+/// first event. Without `--carry-over` event 2 alone is replayed, with the warning.
+#[test]
+fn carry_over_replays_the_undrained_events_before_the_one_asked_for() {
+    let rain = repo().join("tests/data/rain/sg_s117_storms.csv");
+    let (dir, p) = demo_dir();
+    let replay = |extra: &[&str], out: &std::path::Path| {
+        let mut args = vec![
+            "replay",
+            p.to_str().unwrap(),
+            "--rain",
+            rain.to_str().unwrap(),
+            "--time-col",
+            "timestamp_sgt",
+            "--depth-col",
+            "value",
+            "--interval-s",
+            "300",
+            "--inter-event-s",
+            "3600",
+            "--policy",
+            "threshold",
+            "--out",
+            out.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        run(&args)
+    };
+    let rain_of = |out: &std::path::Path| -> (f64, String) {
+        let j: serde_json::Value = serde_json::from_str(
+            &std::fs::read_to_string(out.join("summary-threshold.json")).unwrap(),
+        )
+        .unwrap();
+        (
+            j["rain_mm"].as_f64().unwrap(),
+            j["storm"].as_str().unwrap().to_string(),
+        )
+    };
+    let both = dir.path().join("both");
+    let o = replay(&["--event", "2", "--carry-over"], &both);
+    let err = text(&o.stderr);
+    assert!(matches!(o.status.code(), Some(0 | 1)), "{err}");
+    assert!(
+        err.contains("event 2 is replayed from event 1 (2017-01-01 13:20)"),
+        "{err}"
+    );
+    assert!(
+        err.contains("the record says nothing of the pond before it"),
+        "{err}"
+    );
+    assert!(!err.contains("replayed from the normal level"), "{err}");
+    let (mm, storm) = rain_of(&both);
+    assert!((mm - (0.4 + 71.4)).abs() < 1e-6, "{mm}");
+    assert!(storm.ends_with("events 1-2"), "{storm}");
+    let alone = dir.path().join("alone");
+    let o = replay(&["--event", "2"], &alone);
+    let err = text(&o.stderr);
+    assert!(
+        err.contains("event 2 is replayed from the normal level"),
+        "{err}"
+    );
+    assert!(
+        err.contains("--carry-over replays the events before it too"),
+        "{err}"
+    );
+    let (mm, storm) = rain_of(&alone);
+    assert!((mm - 71.4).abs() < 1e-6, "{mm}");
+    assert!(storm.ends_with("event 2"), "{storm}");
+}
+
 /// `--list-events` prints the record's events to stdout as CSV, on the file's own calendar,
 /// and replays nothing (before, the event list went to stderr as step indices only).
 #[test]
