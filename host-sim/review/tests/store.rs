@@ -21,8 +21,9 @@ struct Fleet {
 fn demo_fleet() -> &'static Fleet {
     static FLEET: std::sync::OnceLock<Fleet> = std::sync::OnceLock::new();
     FLEET.get_or_init(|| {
-        let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR"))
-            .join(format!("review-store-{}", std::process::id()));
+        let tmp = PathBuf::from(env!("CARGO_TARGET_TMPDIR"));
+        remove_stale_fleets(&tmp);
+        let dir = tmp.join(format!("review-store-{}", std::process::id()));
         let _ = std::fs::remove_dir_all(&dir);
         let (ponds, dumps) = demo::write_fleet(&dir, 3, 11, 2025, 75, 25, 256).unwrap();
         let ponds = ponds
@@ -34,6 +35,26 @@ fn demo_fleet() -> &'static Fleet {
             .collect();
         Fleet { dir, ponds, dumps }
     })
+}
+
+/// Fleets of earlier runs: one folder per test process (processes may run side by side, so
+/// each writes its own), about 17 MB each, which a static cannot remove at exit. Those not
+/// touched for an hour are removed here, so that the folder does not grow run after run.
+fn remove_stale_fleets(tmp: &Path) {
+    let Ok(entries) = std::fs::read_dir(tmp) else {
+        return;
+    };
+    for e in entries.flatten() {
+        let stale = e
+            .metadata()
+            .and_then(|m| m.modified())
+            .ok()
+            .and_then(|t| t.elapsed().ok())
+            .is_some_and(|age| age > std::time::Duration::from_secs(3600));
+        if stale && e.file_name().to_string_lossy().starts_with("review-store-") {
+            let _ = std::fs::remove_dir_all(e.path());
+        }
+    }
 }
 
 fn snapshot(store: &mut Store) -> (Vec<String>, (i64, i64, i64, i64)) {
