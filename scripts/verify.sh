@@ -82,7 +82,7 @@ if ! cargo fuzz --version >/dev/null 2>&1; then
 fi
 fuzz_s=${HOLDBACK_FUZZ_SECONDS:-15}
 for spec in core:decode_event core:unpack_config firmware:verify_command firmware:read_dump \
-    host-sim:pond_file host-sim:rain_file host-sim:telemetry_line; do
+    host-sim:pond_file host-sim:rain_file host-sim:telemetry_line host-sim:review_files; do
     dir=${spec%%:*}
     target=${spec#*:}
     echo "-- $dir/fuzz $target (${fuzz_s} s)"

@@ -232,7 +232,12 @@ impl Pond {
     /// Read and validate a JSON pond file.
     pub fn load(path: &Path) -> Result<Pond, ReviewError> {
         let text = std::fs::read_to_string(path).map_err(|e| ReviewError::io(path, e))?;
-        let info: PondInfo = serde_json::from_str(&text).map_err(|e| ReviewError::Parse {
+        Pond::from_json(&text, path)
+    }
+
+    /// Parse and validate the text of a JSON pond file; `path` labels errors.
+    pub fn from_json(text: &str, path: &Path) -> Result<Pond, ReviewError> {
+        let info: PondInfo = serde_json::from_str(text).map_err(|e| ReviewError::Parse {
             path: path.to_path_buf(),
             line: e.line(),
             field: "pond file".into(),
