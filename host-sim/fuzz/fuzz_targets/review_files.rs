@@ -21,14 +21,15 @@ fuzz_target!(|data: &[u8]| {
     let path = Path::new("fuzz");
     match sel % 4 {
         0 | 1 => {
-            // 1: the bytes as the frames of an exported log file behind a valid header
-            // (its CRC is out of the fuzzer's reach), so the frame reader is searched too.
+            // 1: the bytes as the frames of an exported log file behind a valid header, each
+            // frame's CRC made right (CRCs are out of the fuzzer's reach), so the payload
+            // decoder and the reader's resynchronisation are searched too.
             let owned;
             let rest = if sel % 4 == 1 {
                 let Ok(mut file) = logfile::write_bytes("fuzz", &[]) else {
                     return;
                 };
-                file.extend_from_slice(rest);
+                file.extend_from_slice(&framed(rest));
                 owned = file;
                 owned.as_slice()
             } else {
@@ -91,3 +92,26 @@ fuzz_target!(|data: &[u8]| {
         }
     }
 });
+
+/// Chunks of `bytes` as core event frames with a right CRC: a chunk is a control byte, then
+/// its payload (length from the control byte, at most the frame limit); a control byte with
+/// its top bit set puts the chunk in as it is, junk for the reader to skip.
+fn framed(mut bytes: &[u8]) -> Vec<u8> {
+    let mut out = Vec::new();
+    while let Some((&ctl, tail)) = bytes.split_first() {
+        let len = (usize::from(ctl & 0x7f) % (event::MAX_PAYLOAD_LEN + 1)).min(tail.len());
+        let (payload, next) = tail.split_at(len);
+        if ctl & 0x80 != 0 {
+            out.extend_from_slice(payload);
+        } else {
+            let start = out.len();
+            out.push(event::FORMAT_VERSION);
+            out.push(len as u8);
+            out.extend_from_slice(payload);
+            let crc = event::crc32(&out[start..]);
+            out.extend_from_slice(&crc.to_le_bytes());
+        }
+        bytes = next;
+    }
+    out
+}
